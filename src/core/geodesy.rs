@@ -1,0 +1,1 @@
+//! Geodesic areas (being written).

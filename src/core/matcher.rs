@@ -1,0 +1,1 @@
+//! Name matching (being written).

@@ -1,0 +1,12 @@
+//! Pure computation on in-memory types. Nothing here reads files, writes to
+//! the terminal or knows about the command line.
+
+pub mod allocate;
+pub mod crosswalk;
+pub mod fips;
+pub mod geodesy;
+pub mod history;
+pub mod matcher;
+pub mod normalize;
+pub mod overlay;
+pub mod reference;

@@ -1,0 +1,1 @@
+//! Name normalization (being written).

@@ -1,0 +1,1 @@
+//! Polygon overlay (being written).

@@ -1,0 +1,8 @@
+//! Readers and writers. Everything that touches a file, standard input or
+//! output, or the terminal lives here; the computation lives in [`crate::core`].
+
+pub mod builtin;
+pub mod crosswalk_file;
+pub mod output;
+pub mod progress;
+pub mod table;
