@@ -126,7 +126,7 @@ impl FromStr for CountyFips {
         if n / 1000 == 0 {
             return Err(FipsError::ZeroState(s.to_string()));
         }
-        if n % 1000 == 0 {
+        if n.is_multiple_of(1000) {
             return Err(FipsError::StateLevel(s.to_string()));
         }
         CountyFips::from_number(n).ok_or_else(|| FipsError::WrongLength(s.to_string()))
