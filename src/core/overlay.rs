@@ -107,6 +107,16 @@ fn ring_signed_planar(r: &[Coord<f64>]) -> f64 {
     s / 2.0
 }
 
+/// True when all points lie on one line (or coincide).
+fn collinear(pts: &[Coord<f64>]) -> bool {
+    let Some(&p0) = pts.first() else { return true };
+    let Some(&p1) = pts.iter().find(|&&p| p != p0) else {
+        return true;
+    };
+    pts.iter()
+        .all(|p| (p1.x - p0.x) * (p.y - p0.y) - (p1.y - p0.y) * (p.x - p0.x) == 0.0)
+}
+
 /// Cleans one ring: closes it, removes repeated consecutive points.
 /// Returns the closed ring, or `None` if it has no area left.
 fn clean_ring(ring: &Ring, problems: &mut Vec<String>, label: &str) -> Option<LineString<f64>> {
@@ -125,7 +135,9 @@ fn clean_ring(ring: &Ring, problems: &mut Vec<String>, label: &str) -> Option<Li
         }
     }
     let distinct = pts.len().saturating_sub(1);
-    if distinct < 3 || ring_signed_planar(&pts) == 0.0 {
+    // A ring collapses when its points are on one line; a zero signed area
+    // alone is not enough (a bow-tie has two real lobes that cancel).
+    if distinct < 3 || collinear(&pts) {
         problems.push(format!(
             "{label} collapsed (fewer than 3 distinct points or no area); dropped it"
         ));
