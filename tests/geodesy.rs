@@ -5,7 +5,10 @@
 
 use regionkey::core::geodesy::WGS84;
 
-fn references() -> Vec<(String, Vec<(f64, f64)>, f64)> {
+/// (name, ring, area in m²)
+type Reference = (String, Vec<(f64, f64)>, f64);
+
+fn references() -> Vec<Reference> {
     let text = std::fs::read_to_string("fixtures/geometry/reference-areas.csv").unwrap();
     text.lines()
         .skip(1)

@@ -24,7 +24,10 @@ fn rect(x0: f64, y0: f64, x1: f64, y1: f64) -> Vec<Coord<f64>> {
     ring(&[(x0, y0), (x1, y0), (x1, y1), (x0, y1), (x0, y0)])
 }
 
-fn units(features: Vec<(&str, Vec<Vec<Vec<Coord<f64>>>>)>) -> Vec<Unit> {
+/// A feature by hand: code and polygons (rings of coordinates).
+type Hand<'a> = (&'a str, Vec<Vec<Vec<Coord<f64>>>>);
+
+fn units(features: Vec<Hand<'_>>) -> Vec<Unit> {
     let raw: Vec<RawFeature> = features
         .into_iter()
         .enumerate()

@@ -59,6 +59,23 @@ pub struct Args {
     /// TopoJSON object of the target layer (default: the only polygon object).
     #[arg(long, value_name = "NAME")]
     pub to_object: Option<String>,
+    /// Vintage labels and population weighting.
+    #[command(flatten)]
+    pub more: Box<More>,
+    /// Pieces below this share of both the source and the target are
+    /// slivers from boundary misalignment: dropped, and the source's
+    /// weights renormalized (the metadata says how much per source).
+    #[arg(long, value_name = "F", default_value_t = DEFAULT_MIN_SHARE)]
+    pub min_share: f64,
+    /// Output file (.csv, or .parquet for Parquet); `-` for standard output
+    /// (then no metadata file is written).
+    #[arg(long, short, value_name = "FILE")]
+    pub output: String,
+}
+
+/// Less common options, boxed to keep the command enum small.
+#[derive(Debug, clap::Args)]
+pub struct More {
     /// Label of the source vintage in the metadata (default: the layer's name).
     #[arg(long, value_name = "LABEL")]
     pub from_label: Option<String>,
@@ -75,15 +92,6 @@ pub struct Args {
     /// The count column or property of the population layer.
     #[arg(long, value_name = "FIELD")]
     pub population_field: Option<String>,
-    /// Pieces below this share of both the source and the target are
-    /// slivers from boundary misalignment: dropped, and the source's
-    /// weights renormalized (the metadata says how much per source).
-    #[arg(long, value_name = "F", default_value_t = DEFAULT_MIN_SHARE)]
-    pub min_share: f64,
-    /// Output file (.csv, or .parquet for Parquet); `-` for standard output
-    /// (then no metadata file is written).
-    #[arg(long, short, value_name = "FILE")]
-    pub output: String,
 }
 
 /// The checked configuration.
@@ -102,7 +110,11 @@ fn check(args: &Args) -> Result<Config> {
             args.min_share
         )));
     }
-    let population = match (args.weight, &args.population, &args.population_field) {
+    let population = match (
+        args.more.weight,
+        &args.more.population,
+        &args.more.population_field,
+    ) {
         (WeightBy::Population, Some(p), Some(f)) => Some((p.clone(), f.clone())),
         (WeightBy::Population, None, _) => {
             return Err(Error::Usage(
@@ -280,13 +292,13 @@ fn metadata(
         .collect();
     json!({
         "tool": format!("regionkey {}", env!("CARGO_PKG_VERSION")),
-        "from": layer_json(from, label(&args.from, &args.from_label)),
-        "to": layer_json(to, label(&args.to, &args.to_label)),
+        "from": layer_json(from, label(&args.from, &args.more.from_label)),
+        "to": layer_json(to, label(&args.to, &args.more.to_label)),
         "options": {
-            "weight": match args.weight { WeightBy::Area => "area", WeightBy::Population => "population" },
-            "population": args.population.as_ref().map(|p| json!({
+            "weight": match args.more.weight { WeightBy::Area => "area", WeightBy::Population => "population" },
+            "population": args.more.population.as_ref().map(|p| json!({
                 "path": p,
-                "field": args.population_field,
+                "field": args.more.population_field,
                 "sha256": pop_sha,
             })),
             "min_share": args.min_share,

@@ -316,8 +316,11 @@ fn envelope(p: &Polygon<f64>) -> Option<AABB<[f64; 2]>> {
 /// R*-tree over the parts of a layer: each entry a part's bounding box with
 /// its (unit, part) indices.
 pub struct PartTree {
-    tree: RTree<GeomWithData<rstar::primitives::Rectangle<[f64; 2]>, (usize, usize)>>,
+    tree: RTree<PartBox>,
 }
+
+/// A part's bounding box with its (unit, part) indices.
+type PartBox = GeomWithData<rstar::primitives::Rectangle<[f64; 2]>, (usize, usize)>;
 
 impl PartTree {
     /// Builds the tree over every part of every unit.
