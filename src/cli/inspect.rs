@@ -1,13 +1,88 @@
-//! `regionkey inspect` (being written).
+//! `regionkey inspect`: checks a crosswalk file and summarizes it.
+
+use std::path::PathBuf;
 
 use super::Global;
-use crate::error::Result;
+use crate::core::crosswalk::SUM_TOLERANCE;
+use crate::error::{Error, Location, Result};
+use crate::io::crosswalk_file::read_csv;
 
 /// Arguments.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+#[command(after_help = "\
+Checks: weights and target shares within 0..1; each source's weights (its \
+row with an empty to_code included) sum to 1 within the tolerance; no pair \
+twice; codes well-formed (no blanks, no lost leading zeros). Exits 1 when \
+a check fails, listing the problems with their lines.")]
+pub struct Args {
+    /// The crosswalk (CSV or Parquet).
+    pub file: PathBuf,
+    /// How far a source's weights may be from summing to 1.
+    #[arg(long, default_value_t = SUM_TOLERANCE)]
+    pub tolerance: f64,
+    /// How many of the largest changes to list.
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+}
 
-/// Runs the command.
-pub fn run(_args: Args, _global: Global) -> Result<()> {
-    Err(super::not_built("inspect"))
+/// Runs the command: the summary goes to standard output, problems to
+/// standard error.
+pub fn run(args: Args, _global: Global) -> Result<()> {
+    if !(args.tolerance >= 0.0 && args.tolerance < 1.0) {
+        return Err(Error::Usage(format!(
+            "--tolerance {} is out of range; give a small non-negative number such as 1e-6",
+            args.tolerance
+        )));
+    }
+    let cw = read_csv(&args.file)?;
+    let s = cw.summary(args.top);
+    let mut out = String::new();
+    out.push_str(&format!("{}\n", args.file.display()));
+    out.push_str(&format!("  rows            {}\n", s.rows));
+    out.push_str(&format!("  sources         {}\n", s.sources));
+    out.push_str(&format!("  targets         {}\n", s.targets));
+    out.push_str(&format!("  one-to-one      {}\n", s.one_to_one));
+    out.push_str(&format!(
+        "  splits          {} (sources in more than one target)\n",
+        s.splits
+    ));
+    out.push_str(&format!(
+        "  merges          {} (targets from more than one source)\n",
+        s.merges
+    ));
+    out.push_str(&format!(
+        "  uncovered       {} partly, {} entirely (outside every target)\n",
+        s.partly_uncovered, s.entirely_uncovered
+    ));
+    if !s.largest_changes.is_empty() {
+        out.push_str("  largest changes (share not in the largest target):\n");
+        for (moved, text) in &s.largest_changes {
+            out.push_str(&format!("    {:.4}  {text}\n", moved));
+        }
+    }
+    crate::io::output::write_to(&crate::io::output::Target::Stdout, |w| {
+        w.write_all(out.as_bytes())
+    })?;
+    let problems = cw.validate(args.tolerance);
+    if problems.is_empty() {
+        return Ok(());
+    }
+    for p in problems.iter().take(50) {
+        let at = match p.row {
+            // The header is line 1.
+            Some(r) => format!("{}: line {}", args.file.display(), r + 2),
+            None => format!("{}: source {}", args.file.display(), p.from_code),
+        };
+        eprintln!("{at}: {}", p.message);
+    }
+    if problems.len() > 50 {
+        eprintln!("... and {} more", problems.len() - 50);
+    }
+    Err(Error::input(
+        Location::file(&args.file),
+        format!(
+            "{} problems found; the crosswalk is not valid",
+            problems.len()
+        ),
+    ))
 }

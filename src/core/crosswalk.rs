@@ -90,3 +90,296 @@ impl Crosswalk {
         });
     }
 }
+
+/// A problem found by [`Crosswalk::validate`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct Problem {
+    /// 0-based row index, when one row is at fault.
+    pub row: Option<usize>,
+    /// The source code concerned.
+    pub from_code: String,
+    /// What is wrong.
+    pub message: String,
+}
+
+/// Default tolerance for weights per source summing to one.
+pub const SUM_TOLERANCE: f64 = 1e-6;
+
+fn code_problem(code: &str) -> Option<&'static str> {
+    if code.is_empty() {
+        Some("is empty")
+    } else if code.trim() != code || code.chars().any(|c| c.is_whitespace() || c.is_control()) {
+        Some("holds white space or control characters")
+    } else if code.contains([',', '"']) {
+        Some("holds a comma or a quote")
+    } else {
+        None
+    }
+}
+
+/// The usual length of all-digit codes in a column, if most codes are
+/// all digits of one length (FIPS-like).
+fn digit_length<'a>(codes: impl Iterator<Item = &'a str>) -> Option<usize> {
+    let mut counts: BTreeMap<usize, usize> = BTreeMap::new();
+    let mut total = 0usize;
+    for c in codes {
+        total += 1;
+        if !c.is_empty() && c.bytes().all(|b| b.is_ascii_digit()) {
+            *counts.entry(c.len()).or_default() += 1;
+        }
+    }
+    let (&len, &n) = counts.iter().max_by_key(|(_, &n)| n)?;
+    (n * 10 >= total * 9).then_some(len)
+}
+
+use std::collections::{BTreeMap, BTreeSet};
+
+impl Crosswalk {
+    /// Checks the crosswalk: weights and target shares within 0..=1; no
+    /// (source, target) pair twice; codes well-formed (not empty, no white
+    /// space, and all-digit codes of the column's usual length, so "1001"
+    /// among 5-digit codes is caught as a lost leading zero); one basis per
+    /// source, except that area and area-fallback never mix with
+    /// population; and each source's weights, the row with no target
+    /// included, summing to 1 within `tolerance`.
+    pub fn validate(&self, tolerance: f64) -> Vec<Problem> {
+        let mut out = Vec::new();
+        let from_len = digit_length(self.rows.iter().map(|r| r.from_code.as_str()));
+        let to_len = digit_length(self.rows.iter().filter_map(|r| r.to_code.as_deref()));
+        let mut seen: BTreeSet<(&str, Option<&str>)> = BTreeSet::new();
+        let mut sums: BTreeMap<&str, (f64, BTreeSet<Basis>)> = BTreeMap::new();
+        for (i, r) in self.rows.iter().enumerate() {
+            let mut bad = |message: String| {
+                out.push(Problem {
+                    row: Some(i),
+                    from_code: r.from_code.clone(),
+                    message,
+                })
+            };
+            for (side, code, len) in [
+                ("from_code", Some(r.from_code.as_str()), from_len),
+                ("to_code", r.to_code.as_deref(), to_len),
+            ] {
+                let Some(code) = code else { continue };
+                if let Some(p) = code_problem(code) {
+                    bad(format!("{side} {code:?} {p}"));
+                } else if let Some(len) = len {
+                    if code.bytes().all(|b| b.is_ascii_digit()) && code.len() != len {
+                        bad(format!(
+                            "{side} {code:?} has {} digits where the others have {len}; a lost leading zero?",
+                            code.len()
+                        ));
+                    }
+                }
+            }
+            if !(r.weight.is_finite() && (0.0..=1.0 + tolerance).contains(&r.weight)) {
+                bad(format!("weight {} is outside 0..1", r.weight));
+            }
+            if let Some(s) = r.target_share {
+                if !(s.is_finite() && (0.0..=1.0 + tolerance).contains(&s)) {
+                    bad(format!("target_share {s} is outside 0..1"));
+                }
+            }
+            if !seen.insert((r.from_code.as_str(), r.to_code.as_deref())) {
+                bad(format!(
+                    "the pair {} -> {} appears more than once",
+                    r.from_code,
+                    r.to_code.as_deref().unwrap_or("(outside every target)")
+                ));
+            }
+            let e = sums.entry(r.from_code.as_str()).or_default();
+            e.0 += r.weight;
+            e.1.insert(r.basis);
+        }
+        for (code, (sum, bases)) in sums {
+            if (sum - 1.0).abs() > tolerance {
+                out.push(Problem {
+                    row: None,
+                    from_code: code.to_string(),
+                    message: format!(
+                        "the weights of source {code} sum to {sum:.9}, not 1 (tolerance {tolerance:e}); \
+                         a source's rows, with its row for the part outside every target, must add up to 1"
+                    ),
+                });
+            }
+            let pop = bases.contains(&Basis::Population);
+            let area = bases.contains(&Basis::Area) || bases.contains(&Basis::AreaFallback);
+            if pop && area {
+                out.push(Problem {
+                    row: None,
+                    from_code: code.to_string(),
+                    message: format!("source {code} mixes population and area weights"),
+                });
+            }
+        }
+        out
+    }
+
+    /// Summarizes the crosswalk's structure (see [`Summary`]). `top` bounds
+    /// the list of largest changes.
+    pub fn summary(&self, top: usize) -> Summary {
+        let mut targets_of: BTreeMap<&str, Vec<&CrosswalkRow>> = BTreeMap::new();
+        let mut sources_of: BTreeMap<&str, BTreeSet<&str>> = BTreeMap::new();
+        for r in &self.rows {
+            targets_of.entry(&r.from_code).or_default().push(r);
+            if let Some(t) = &r.to_code {
+                sources_of.entry(t).or_default().insert(&r.from_code);
+            }
+        }
+        let mut s = Summary {
+            rows: self.rows.len(),
+            sources: targets_of.len(),
+            targets: sources_of.len(),
+            ..Summary::default()
+        };
+        let mut changes: Vec<(f64, String)> = Vec::new();
+        for (code, rows) in &targets_of {
+            let to: Vec<&&CrosswalkRow> = rows.iter().filter(|r| r.to_code.is_some()).collect();
+            let uncovered: f64 = rows
+                .iter()
+                .filter(|r| r.to_code.is_none())
+                .map(|r| r.weight)
+                .sum();
+            if uncovered > 0.0 {
+                s.partly_uncovered += 1;
+            }
+            if to.is_empty() {
+                s.entirely_uncovered += 1;
+                continue;
+            }
+            if to.len() > 1 {
+                s.splits += 1;
+            }
+            let largest = to.iter().map(|r| r.weight).fold(0.0, f64::max);
+            let single_target_sources = to.len() == 1
+                && to[0]
+                    .to_code
+                    .as_deref()
+                    .is_some_and(|t| sources_of.get(t).is_some_and(|v| v.len() == 1));
+            if single_target_sources && uncovered == 0.0 {
+                s.one_to_one += 1;
+            }
+            let moved = 1.0 - largest;
+            if moved > 0.0 {
+                let parts: Vec<String> = to
+                    .iter()
+                    .map(|r| format!("{} {:.4}", r.to_code.as_deref().unwrap_or(""), r.weight))
+                    .collect();
+                changes.push((moved, format!("{code} -> {}", parts.join(", "))));
+            }
+        }
+        s.merges = sources_of.values().filter(|v| v.len() > 1).count();
+        changes.sort_by(|a, b| b.0.total_cmp(&a.0).then_with(|| a.1.cmp(&b.1)));
+        s.largest_changes = changes.into_iter().take(top).collect();
+        s
+    }
+}
+
+/// The shape of a crosswalk.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Summary {
+    /// Rows.
+    pub rows: usize,
+    /// Distinct sources.
+    pub sources: usize,
+    /// Distinct targets.
+    pub targets: usize,
+    /// Sources wholly in one target that takes nothing from any other source.
+    pub one_to_one: usize,
+    /// Sources spread over more than one target.
+    pub splits: usize,
+    /// Targets made of more than one source.
+    pub merges: usize,
+    /// Sources with a share outside every target.
+    pub partly_uncovered: usize,
+    /// Sources wholly outside every target.
+    pub entirely_uncovered: usize,
+    /// Sources whose largest piece is smallest: (share not in the largest
+    /// target, description), largest change first.
+    pub largest_changes: Vec<(f64, String)>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(f: &str, t: Option<&str>, w: f64) -> CrosswalkRow {
+        CrosswalkRow {
+            from_code: f.into(),
+            to_code: t.map(Into::into),
+            weight: w,
+            target_share: None,
+            basis: Basis::Area,
+        }
+    }
+
+    #[test]
+    fn a_source_whose_weights_do_not_sum_to_one_is_reported() {
+        let cw = Crosswalk {
+            rows: vec![
+                row("01001", Some("01001"), 0.6),
+                row("01003", Some("01003"), 1.0),
+            ],
+        };
+        let p = cw.validate(SUM_TOLERANCE);
+        assert_eq!(p.len(), 1);
+        assert_eq!(p[0].from_code, "01001");
+        assert!(p[0].message.contains("sum to 0.6"));
+    }
+
+    #[test]
+    fn the_uncovered_row_counts_towards_the_sum() {
+        let cw = Crosswalk {
+            rows: vec![row("01001", Some("01001"), 0.6), row("01001", None, 0.4)],
+        };
+        assert!(cw.validate(SUM_TOLERANCE).is_empty());
+    }
+
+    #[test]
+    fn duplicate_pairs_and_lost_leading_zeros_are_reported() {
+        let cw = Crosswalk {
+            rows: vec![
+                row("01001", Some("01001"), 0.5),
+                row("01001", Some("01001"), 0.5),
+                row("1003", Some("01003"), 1.0),
+                row("01005", Some("01005"), 1.0),
+                row("01007", Some("01007"), 1.0),
+                row("01009", Some("01009"), 1.0),
+                row("01011", Some("01011"), 1.0),
+                row("01013", Some("01013"), 1.0),
+                row("01015", Some("01015"), 1.0),
+                row("01017", Some("01017"), 1.0),
+                row("01019", Some("01019"), 1.0),
+            ],
+        };
+        let p = cw.validate(SUM_TOLERANCE);
+        assert!(p
+            .iter()
+            .any(|p| p.row == Some(1) && p.message.contains("more than once")));
+        assert!(p
+            .iter()
+            .any(|p| p.row == Some(2) && p.message.contains("lost leading zero")));
+        assert_eq!(p.len(), 2);
+    }
+
+    #[test]
+    fn summary_counts_splits_merges_and_one_to_one() {
+        let cw = Crosswalk {
+            rows: vec![
+                row("A", Some("X"), 0.25),
+                row("A", Some("Y"), 0.75),
+                row("B", Some("Y"), 1.0),
+                row("C", Some("Z"), 1.0),
+                row("D", None, 1.0),
+            ],
+        };
+        let s = cw.summary(5);
+        assert_eq!(
+            (s.sources, s.targets, s.splits, s.merges, s.one_to_one),
+            (4, 3, 1, 1, 1)
+        );
+        assert_eq!(s.entirely_uncovered, 1);
+        assert_eq!(s.largest_changes.len(), 1);
+        assert!((s.largest_changes[0].0 - 0.25).abs() < 1e-12);
+    }
+}

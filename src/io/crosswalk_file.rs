@@ -84,3 +84,53 @@ pub fn read_csv(path: &Path) -> Result<Crosswalk> {
     }
     Ok(Crosswalk { rows })
 }
+
+/// Writes a crosswalk as Parquet: the same columns, codes as text, weights
+/// and shares as 64-bit floats (missing `to_code`/`target_share` as null).
+pub fn write_parquet(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()> {
+    use polars::prelude::*;
+    let rows = &crosswalk.rows;
+    let from: Vec<&str> = rows.iter().map(|r| r.from_code.as_str()).collect();
+    let to: Vec<Option<&str>> = rows.iter().map(|r| r.to_code.as_deref()).collect();
+    let weight: Vec<f64> = rows.iter().map(|r| r.weight).collect();
+    let share: Vec<Option<f64>> = rows.iter().map(|r| r.target_share).collect();
+    let basis: Vec<&str> = rows.iter().map(|r| r.basis.as_str()).collect();
+    let mut df = df!(
+        COLUMNS[0] => from,
+        COLUMNS[1] => to,
+        COLUMNS[2] => weight,
+        COLUMNS[3] => share,
+        COLUMNS[4] => basis,
+    )
+    .map_err(std::io::Error::other)?;
+    ParquetWriter::new(w)
+        .finish(&mut df)
+        .map_err(std::io::Error::other)?;
+    Ok(())
+}
+
+/// True when a crosswalk output path asks for Parquet (`.parquet`).
+pub fn is_parquet_path(path: &Path) -> bool {
+    path.extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+}
+
+/// The sidecar metadata path: the crosswalk path with `.json` appended.
+pub fn sidecar_path(path: &Path) -> std::path::PathBuf {
+    let mut s = path.as_os_str().to_owned();
+    s.push(".json");
+    s.into()
+}
+
+/// The caution carried in every sidecar.
+pub const CAUTION: &str =
+    "Figures allocated with this crosswalk are estimates: they assume a value \
+is spread evenly (by area or by population) within each source unit. For legal or funding uses, \
+official relationship files and local practice prevail.";
+
+/// Writes sidecar metadata (a JSON value) with sorted keys and a final
+/// newline, so the bytes are stable.
+pub fn write_sidecar(w: &mut dyn Write, meta: &serde_json::Value) -> std::io::Result<()> {
+    serde_json::to_writer_pretty(&mut *w, meta).map_err(std::io::Error::other)?;
+    writeln!(w)
+}

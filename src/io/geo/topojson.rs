@@ -1,0 +1,252 @@
+//! TopoJSON: arcs decoded (delta-encoded when quantized), rings stitched
+//! from arcs without repeating the joint vertex, one object chosen.
+
+use std::collections::BTreeSet;
+use std::path::Path;
+
+use geo::Coord;
+use serde_json::Value;
+
+use super::{check_lonlat, key_text, resolve_keys, Layer, LayerRequest};
+use crate::core::overlay::{RawFeature, Ring, RingConvention};
+use crate::error::{Error, Location, Result};
+
+fn has_polygons(obj: &Value) -> bool {
+    match obj.get("type").and_then(Value::as_str) {
+        Some("Polygon" | "MultiPolygon") => true,
+        Some("GeometryCollection") => obj
+            .get("geometries")
+            .and_then(Value::as_array)
+            .is_some_and(|g| g.iter().any(has_polygons)),
+        _ => false,
+    }
+}
+
+/// Reads one object of a parsed Topology.
+pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
+    let objects = doc
+        .get("objects")
+        .and_then(Value::as_object)
+        .ok_or_else(|| Error::input(Location::file(path), "the Topology has no \"objects\""))?;
+    let polygon_objects: Vec<&String> = objects
+        .iter()
+        .filter(|(_, o)| has_polygons(o))
+        .map(|(k, _)| k)
+        .collect();
+    let names = |v: &[&String]| v.iter().map(|s| s.as_str()).collect::<Vec<_>>().join(", ");
+    let name = match &req.object {
+        Some(n) => {
+            if !objects.contains_key(n) {
+                return Err(Error::input(
+                    Location::file(path),
+                    format!(
+                        "no object {n:?} for {}; the objects with polygons are: {}",
+                        req.object_option,
+                        names(&polygon_objects)
+                    ),
+                ));
+            }
+            n.clone()
+        }
+        None => match polygon_objects.as_slice() {
+            [one] => (*one).clone(),
+            [] => {
+                return Err(Error::input(
+                    Location::file(path),
+                    "the Topology has no polygon object",
+                ))
+            }
+            several => {
+                return Err(Error::input(
+                    Location::file(path),
+                    format!(
+                        "the Topology has several polygon objects: {}; choose one with {}",
+                        names(several),
+                        req.object_option
+                    ),
+                ))
+            }
+        },
+    };
+    let arcs = decode_arcs(path, doc)?;
+    let obj = &objects[&name];
+    let geometries: Vec<&Value> = match obj.get("type").and_then(Value::as_str) {
+        Some("GeometryCollection") => obj
+            .get("geometries")
+            .and_then(Value::as_array)
+            .map(|g| g.iter().collect())
+            .unwrap_or_default(),
+        _ => vec![obj],
+    };
+    let mut fields = BTreeSet::new();
+    let mut ids = Vec::with_capacity(geometries.len());
+    let mut polygons = Vec::with_capacity(geometries.len());
+    for (i, g) in geometries.iter().enumerate() {
+        let n = i as u64 + 1;
+        if let Some(p) = g.get("properties").and_then(Value::as_object) {
+            fields.extend(p.keys().cloned());
+        }
+        ids.push(g.get("id").and_then(key_text));
+        polygons.push(geometry_polygons(path, n, g, &arcs)?);
+    }
+    let fields: Vec<String> = fields.into_iter().collect();
+    let (keys, key) = resolve_keys(path, req, &fields, &ids, |i, field| {
+        geometries[i]
+            .get("properties")
+            .and_then(|p| p.get(field))
+            .and_then(key_text)
+    })?;
+    let features = keys
+        .into_iter()
+        .zip(polygons)
+        .enumerate()
+        .map(|(i, (key, polygons))| RawFeature {
+            number: i as u64 + 1,
+            key,
+            polygons,
+        })
+        .collect();
+    Ok(Layer {
+        path: path.to_path_buf(),
+        sha256,
+        format: "TopoJSON",
+        object: Some(name),
+        key,
+        fields,
+        features,
+        convention: RingConvention::ExteriorClockwise,
+    })
+}
+
+/// Decodes all arcs to longitude/latitude.
+fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
+    let bad =
+        |what: &str| Error::input(Location::file(path), format!("malformed TopoJSON: {what}"));
+    let transform = match doc.get("transform") {
+        None | Some(Value::Null) => None,
+        Some(t) => {
+            let pair = |k: &str| -> Result<(f64, f64)> {
+                let a = t
+                    .get(k)
+                    .and_then(Value::as_array)
+                    .ok_or_else(|| bad("transform"))?;
+                match (
+                    a.first().and_then(Value::as_f64),
+                    a.get(1).and_then(Value::as_f64),
+                ) {
+                    (Some(x), Some(y)) => Ok((x, y)),
+                    _ => Err(bad("transform")),
+                }
+            };
+            Some((pair("scale")?, pair("translate")?))
+        }
+    };
+    let arcs = doc
+        .get("arcs")
+        .and_then(Value::as_array)
+        .ok_or_else(|| bad("no \"arcs\" list"))?;
+    let mut out = Vec::with_capacity(arcs.len());
+    for arc in arcs {
+        let pts = arc.as_array().ok_or_else(|| bad("an arc is not a list"))?;
+        let mut v = Vec::with_capacity(pts.len());
+        let (mut x, mut y) = (0.0f64, 0.0f64);
+        for p in pts {
+            let p = p
+                .as_array()
+                .ok_or_else(|| bad("an arc position is not a list"))?;
+            let (Some(a), Some(b)) = (
+                p.first().and_then(Value::as_f64),
+                p.get(1).and_then(Value::as_f64),
+            ) else {
+                return Err(bad("an arc position is not two numbers"));
+            };
+            match transform {
+                Some(((sx, sy), (tx, ty))) => {
+                    x += a;
+                    y += b;
+                    v.push(Coord {
+                        x: x * sx + tx,
+                        y: y * sy + ty,
+                    });
+                }
+                None => v.push(Coord { x: a, y: b }),
+            }
+        }
+        out.push(v);
+    }
+    Ok(out)
+}
+
+fn ring_from_arcs(path: &Path, n: u64, idx: &Value, arcs: &[Vec<Coord<f64>>]) -> Result<Ring> {
+    let bad = |what: String| {
+        Error::input(
+            Location::file(path).at_line(n),
+            format!("feature {n}: {what}"),
+        )
+    };
+    let list = idx
+        .as_array()
+        .ok_or_else(|| bad("a ring is not a list of arc indices".into()))?;
+    let mut ring: Ring = Vec::new();
+    for a in list {
+        let i = a
+            .as_i64()
+            .ok_or_else(|| bad(format!("arc index {a} is not an integer")))?;
+        let (k, reversed) = if i >= 0 {
+            (i as usize, false)
+        } else {
+            ((!i) as usize, true)
+        };
+        let arc = arcs
+            .get(k)
+            .ok_or_else(|| bad(format!("arc index {i} is out of range")))?;
+        let skip = usize::from(!ring.is_empty());
+        if reversed {
+            ring.extend(arc.iter().rev().skip(skip));
+        } else {
+            ring.extend(arc.iter().skip(skip));
+        }
+    }
+    for &c in &ring {
+        check_lonlat(path, n, c)?;
+    }
+    Ok(ring)
+}
+
+fn geometry_polygons(
+    path: &Path,
+    n: u64,
+    g: &Value,
+    arcs: &[Vec<Coord<f64>>],
+) -> Result<Vec<Vec<Ring>>> {
+    let kind = g.get("type").and_then(Value::as_str);
+    let a = g.get("arcs").unwrap_or(&Value::Null);
+    let polygon = |p: &Value| -> Result<Vec<Ring>> {
+        p.as_array()
+            .ok_or_else(|| {
+                Error::input(
+                    Location::file(path).at_line(n),
+                    format!("feature {n}: a polygon is not a list of rings"),
+                )
+            })?
+            .iter()
+            .map(|r| ring_from_arcs(path, n, r, arcs))
+            .collect()
+    };
+    match kind {
+        None => Ok(Vec::new()),
+        Some("Polygon") => Ok(vec![polygon(a)?]),
+        Some("MultiPolygon") => a
+            .as_array()
+            .ok_or_else(|| {
+                Error::input(Location::file(path).at_line(n), format!("feature {n}: MultiPolygon arcs are not a list"))
+            })?
+            .iter()
+            .map(polygon)
+            .collect(),
+        Some(other) => Err(Error::input(
+            Location::file(path).at_line(n),
+            format!("feature {n} is a {other:?}; a boundary layer holds Polygon or MultiPolygon geometries"),
+        )),
+    }
+}

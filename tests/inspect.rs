@@ -1,0 +1,46 @@
+//! `regionkey inspect` on the binary.
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+
+fn rk() -> Command {
+    Command::cargo_bin("regionkey").unwrap()
+}
+
+#[test]
+fn the_shipped_county_crosswalk_is_valid_and_shows_the_connecticut_change() {
+    rk().args(["inspect", "crosswalks/us-counties-2017-2023.csv"])
+        .assert()
+        .success()
+        .stdout(predicate::str::contains("sources         3230"))
+        .stdout(predicate::str::contains("02261 -> 02063 0.29"));
+}
+
+#[test]
+fn a_crosswalk_whose_weights_do_not_sum_to_one_fails_naming_the_source() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("bad.csv");
+    std::fs::write(
+        &p,
+        "from_code,to_code,weight,target_share,basis\n\
+         01001,01001,0.7,1.0,area\n\
+         01003,01003,1.0,1.0,area\n\
+         01003,01003,0.0,0.0,area\n",
+    )
+    .unwrap();
+    rk().args(["inspect", p.to_str().unwrap()])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("source 01001"))
+        .stderr(predicate::str::contains("sum to 0.7"))
+        .stderr(predicate::str::contains("line 4"))
+        .stderr(predicate::str::contains("more than once"));
+}
+
+#[test]
+fn a_missing_crosswalk_file_is_named() {
+    rk().args(["inspect", "no-such-crosswalk.csv"])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("no-such-crosswalk.csv"));
+}
