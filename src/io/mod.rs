@@ -5,4 +5,5 @@ pub mod builtin;
 pub mod crosswalk_file;
 pub mod output;
 pub mod progress;
+pub mod review;
 pub mod table;
