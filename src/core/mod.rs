@@ -9,4 +9,5 @@ pub mod history;
 pub mod matcher;
 pub mod normalize;
 pub mod overlay;
+pub mod projection;
 pub mod reference;

@@ -6,4 +6,5 @@ pub mod crosswalk_file;
 pub mod output;
 pub mod progress;
 pub mod review;
+pub mod svg;
 pub mod table;
