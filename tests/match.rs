@@ -116,6 +116,15 @@ fn history_matches_say_what_happened() {
         "{}",
         wade["note"]
     );
+    // The default vintage is the latest the reference describes, 2023.
+    let nowhere = rows.iter().find(|r| r["name"] == "99999").unwrap();
+    assert_eq!(nowhere["note"], "code 99999 is not a unit in 2023");
+    let split = rows.iter().find(|r| r["name"] == "Valdez-Cordova").unwrap();
+    assert!(
+        split["note"].starts_with("split 2019; was 02261"),
+        "{}",
+        split["note"]
+    );
     let bedford = rows
         .iter()
         .find(|r| r["name"] == "Bedford city, VA")

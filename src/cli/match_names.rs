@@ -35,6 +35,9 @@ pub const ADDED_COLUMNS: [&str; 7] = [
 /// Prefix of the added columns when the input already uses one of their names.
 pub const COLUMN_PREFIX: &str = "rk_";
 
+/// The latest vintage the built-in references describe (reference/README.md).
+pub const BUILTIN_LATEST_VINTAGE: u16 = 2023;
+
 /// What the names are matched to.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum LevelArg {
@@ -160,7 +163,13 @@ fn configure(args: &Args) -> Result<Config> {
         ));
     }
     let r = source.get();
-    let latest = r.latest_year().unwrap_or(0);
+    // The spans of the built-in reference end or start no later than 2022
+    // (no change fell in 2023), so `latest_year` says 2022; the data cover
+    // vintage 2023 (reference/README.md).
+    let latest = match source {
+        Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
+        Source::File(_) => r.latest_year().unwrap_or(0),
+    };
     let vintage = args.vintage.unwrap_or(latest);
     if codes == CodeForm::County {
         let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);

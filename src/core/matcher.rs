@@ -149,7 +149,7 @@ pub struct Resolution {
     pub method: Option<Method>,
     /// 1 for exact, variant, alias, history, code and decisions; the
     /// Jaro-Winkler similarity for fuzzy matches; the best candidate's score
-    /// for review; 0 when there is nothing.
+    /// for review; 0 for unmatched.
     pub score: f64,
     /// History note for matches ("renamed 2015; was 02270 ..."), the reason
     /// for review and unmatched.
@@ -185,13 +185,12 @@ impl Resolution {
     }
 
     fn unmatched(note: impl Into<String>, candidates: Vec<Candidate>) -> Self {
-        let score = candidates.first().map_or(0.0, |c| c.score);
         Resolution {
             status: Status::Unmatched,
             code: None,
             name: None,
             method: None,
-            score,
+            score: 0.0,
             note: note.into(),
             candidates,
         }
@@ -708,12 +707,6 @@ impl<'r> Matcher<'r> {
     }
 
     fn resolve_reading(&self, words: &[Token], state: Option<&str>) -> (Grade, Resolution) {
-        if self.descriptions.contains_key(&compact(words)) {
-            return (
-                Grade::Nothing,
-                Resolution::unmatched("only a description, no name", Vec::new()),
-            );
-        }
         let splits = self.splits(words);
         let mut rejected_city: Vec<usize> = Vec::new();
         for split in &splits {
@@ -778,6 +771,14 @@ impl<'r> Matcher<'r> {
                     ),
                     c,
                 ),
+            );
+        }
+        // "County" left over from "Washington County" read as WA + "County"
+        // (Island County, WA is found above by its name).
+        if self.descriptions.contains_key(&compact(words)) {
+            return (
+                Grade::Nothing,
+                Resolution::unmatched("only a description, no name", Vec::new()),
             );
         }
         // Fuzzy on the name without its description when it has one.
@@ -882,7 +883,7 @@ impl<'r> Matcher<'r> {
             self.backward(&e.code, e.valid.from, 0, &mut steps, &mut finals);
         }
         let codes: Vec<String> = finals.into_iter().collect();
-        let steps_text: Vec<String> = steps
+        let mut steps_text: Vec<String> = steps
             .iter()
             .map(|(year, kind, to)| match kind {
                 ChangeKind::Absorbed if forward => format!("absorbed {year} into {to}"),
@@ -890,6 +891,8 @@ impl<'r> Matcher<'r> {
                 _ => format!("{} {year}", kind.as_str()),
             })
             .collect();
+        // One step per (year, kind) in words: a split names its year once.
+        steps_text.dedup();
         let steps_text = if steps_text.is_empty() {
             format!("named so until {}", e.valid.to.unwrap_or(0))
         } else {

@@ -125,10 +125,11 @@ pub fn tokens(text: &str) -> Vec<Token> {
         }
     }
     for (i, &c) in chars.iter().enumerate() {
-        if c.is_alphanumeric() {
-            word.extend(c.to_lowercase());
-        } else if is_apostrophe(c) {
+        if is_apostrophe(c) {
             // Dropped inside a word: "George's" = "Georges", "Hawaiʻi" = "Hawaii".
+            // (Checked first: the ʻokina is a modifier letter, alphanumeric.)
+        } else if c.is_alphanumeric() {
+            word.extend(c.to_lowercase());
         } else if c == '&' {
             flush(&mut word, &mut separator, &mut out);
             out.push(Token {
