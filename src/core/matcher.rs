@@ -293,6 +293,8 @@ pub struct Matcher<'r> {
     parents: HashMap<String, String>,
     /// Parent code -> display name ("California").
     parent_names: HashMap<String, String>,
+    /// Parent code -> short form ("TX"), where the reference has one.
+    parent_short: HashMap<String, String>,
     /// Compact description forms -> canonical key.
     descriptions: HashMap<String, String>,
     changes_from: HashMap<String, Vec<&'r Change>>,
@@ -329,6 +331,7 @@ impl<'r> Matcher<'r> {
             current: Vec::new(),
             parents: HashMap::new(),
             parent_names: HashMap::new(),
+            parent_short: HashMap::new(),
             descriptions,
             changes_from: HashMap::new(),
             changes_to: HashMap::new(),
@@ -371,6 +374,9 @@ impl<'r> Matcher<'r> {
         }
         for p in &reference.parents {
             m.parent_names.insert(p.code.clone(), p.name.clone());
+            if let Some(short) = &p.short {
+                m.parent_short.insert(p.code.clone(), short.clone());
+            }
             let forms = std::iter::once(&p.name)
                 .chain(&p.short)
                 .chain(&p.abbreviations)
@@ -468,9 +474,14 @@ impl<'r> Matcher<'r> {
 
     fn candidate(&self, i: usize, score: f64) -> Candidate {
         let e = &self.entries[i];
+        // "Harris County, TX": candidates from several states stay apart.
+        let name = match e.parent.as_ref().and_then(|p| self.parent_short.get(p)) {
+            Some(short) => format!("{}, {short}", e.full_name),
+            None => e.full_name.clone(),
+        };
         Candidate {
             code: e.code.clone(),
-            name: e.full_name.clone(),
+            name,
             score,
         }
     }
@@ -493,7 +504,7 @@ impl<'r> Matcher<'r> {
                 .get(s)
                 .cloned()
                 .unwrap_or_else(|| s.to_string()),
-            None => "the whole reference".to_string(),
+            None => "the whole reference (no state given)".to_string(),
         }
     }
 
