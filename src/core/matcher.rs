@@ -1,1 +1,1508 @@
-//! Name matching (being written).
+//! Name matching: free-text place names to codes of a [`Reference`] in one
+//! vintage, with the method, a score, a note and ranked candidates.
+//!
+//! A [`Matcher`] is built once from a reference and a vintage year and
+//! answers [`Matcher::resolve`] for a (name, state) pair. The policy, in
+//! order:
+//!
+//! 1. **Codes.** A number of 4-5 digits is a full county code with a lost
+//!    leading zero ("1001" is 01001; "6037.0" from spreadsheets too); 1-3
+//!    digits with a state are a county code within that state. A code that
+//!    is not a unit in the vintage goes through the change history or is
+//!    unmatched.
+//! 2. **Placeholders** ("Statewide", "Unknown", "Total", "N/A", empty) are
+//!    unmatched.
+//! 3. **Readings.** The name is read as a whole, and also with a state
+//!    written into it ("Cook County, IL", "TX: Harris", "king county
+//!    washington"). A state written in the name must agree with the state
+//!    column.
+//! 4. **Description.** A trailing ("Dekalb Co.") or leading ("County of Los
+//!    Angeles") description is taken off. It decides between units that share
+//!    a name ("Fairfax city" vs "Fairfax County"); where no unit of the name
+//!    has that description it is noise ("Orleans County, LA" is Orleans
+//!    Parish), except "city": a city that is not a county equivalent is not
+//!    put onto the county of the same name.
+//! 5. **Names** of units valid in the vintage, then **aliases**, then names of
+//!    **other eras**, followed through the change history: renamed -> the
+//!    unit's code in the vintage; absorbed -> the absorbing unit; split or
+//!    reorganized -> review with the successors. Asked for an older vintage,
+//!    a newer name maps back the same way.
+//! 6. A name shared by several units after the state is applied is never
+//!    guessed: review with all of them as candidates. Without a state a name
+//!    is accepted only when it is unique in the country.
+//! 7. **Fuzzy**: Jaro-Winkler similarity over the units of the state only.
+//!    Accepted when the best score is at least [`ACCEPT_SCORE`] and leads the
+//!    runner-up by at least [`ACCEPT_MARGIN`]; otherwise review (best score
+//!    at least [`REVIEW_SCORE`]) or unmatched. Without a state a fuzzy hit is
+//!    never accepted, only offered for review.
+//!
+//! The thresholds are our choice, checked on the messy-name fixtures
+//! (`fixtures/match/`) not to accept wrong matches.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+
+use crate::core::fips::{CountyFips, StateFips};
+use crate::core::normalize::{compact, is_placeholder, key, tokens, Token};
+use crate::core::reference::{Change, ChangeKind, Reference, YearSpan};
+
+/// Lowest Jaro-Winkler similarity accepted automatically (within a state).
+pub const ACCEPT_SCORE: f64 = 0.94;
+/// Lowest lead of the best fuzzy score over the runner-up (another unit)
+/// for automatic acceptance.
+pub const ACCEPT_MARGIN: f64 = 0.03;
+/// Lowest best score that sends a name to review rather than unmatched.
+pub const REVIEW_SCORE: f64 = 0.85;
+/// Lowest score a fuzzy candidate needs to be listed at all.
+pub const LIST_SCORE: f64 = 0.75;
+/// Most fuzzy candidates listed.
+pub const MAX_FUZZY_CANDIDATES: usize = 5;
+
+/// The outcome class of a name.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Status {
+    /// A code the matcher stands behind.
+    Matched,
+    /// Several candidates or a doubtful one: a person decides.
+    Review,
+    /// No place (placeholder, a city that is no county equivalent, nothing close).
+    Unmatched,
+}
+
+impl Status {
+    /// The word written in outputs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Status::Matched => "matched",
+            Status::Review => "review",
+            Status::Unmatched => "unmatched",
+        }
+    }
+}
+
+/// How a name was matched.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Method {
+    /// The name as written is the unit's name or full name (ignoring case).
+    Exact,
+    /// Equal after normalization (case, punctuation, diacritics, Saint/St.,
+    /// spacing, description forms, a state in the name).
+    Variant,
+    /// An alternative name of a coextensive unit ("Brooklyn").
+    Alias,
+    /// Jaro-Winkler similarity within the state.
+    Fuzzy,
+    /// A name or code of another era, followed through the change history.
+    History,
+    /// The text was a code.
+    Code,
+    /// A decision from the user's decisions file.
+    Decision,
+}
+
+impl Method {
+    /// The word written in outputs.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::Exact => "exact",
+            Method::Variant => "variant",
+            Method::Alias => "alias",
+            Method::Fuzzy => "fuzzy",
+            Method::History => "history",
+            Method::Code => "code",
+            Method::Decision => "decision",
+        }
+    }
+}
+
+/// How numbers in the name column are read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CodeForm {
+    /// Five-digit county FIPS codes (4-5 digits; 1-3 digits with a state).
+    County,
+    /// Two-digit state FIPS codes.
+    State,
+    /// A user's own codes, compared as written.
+    Plain,
+}
+
+/// A ranked candidate for a name.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Candidate {
+    /// Its code.
+    pub code: String,
+    /// Its full name in the vintage.
+    pub name: String,
+    /// Similarity 0-1 (1 for exact hits and history successors).
+    pub score: f64,
+}
+
+/// What the matcher says about one (name, state).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Resolution {
+    /// Matched, review or unmatched.
+    pub status: Status,
+    /// The code (matched only).
+    pub code: Option<String>,
+    /// The unit's full name (matched only).
+    pub name: Option<String>,
+    /// How it was matched (matched, or a decision to leave unmatched).
+    pub method: Option<Method>,
+    /// 1 for exact, variant, alias, history, code and decisions; the
+    /// Jaro-Winkler similarity for fuzzy matches; the best candidate's score
+    /// for review; 0 for unmatched.
+    pub score: f64,
+    /// History note for matches ("renamed 2015; was 02270 ..."), the reason
+    /// for review and unmatched.
+    pub note: String,
+    /// Ranked candidates (review, and unmatched when something came close).
+    pub candidates: Vec<Candidate>,
+}
+
+impl Resolution {
+    fn matched(code: &str, name: &str, method: Method, score: f64, note: String) -> Self {
+        Resolution {
+            status: Status::Matched,
+            code: Some(code.to_string()),
+            name: Some(name.to_string()),
+            method: Some(method),
+            score,
+            note,
+            candidates: Vec::new(),
+        }
+    }
+
+    fn review(note: String, candidates: Vec<Candidate>) -> Self {
+        let score = candidates.first().map_or(0.0, |c| c.score);
+        Resolution {
+            status: Status::Review,
+            code: None,
+            name: None,
+            method: None,
+            score,
+            note,
+            candidates,
+        }
+    }
+
+    fn unmatched(note: impl Into<String>, candidates: Vec<Candidate>) -> Self {
+        Resolution {
+            status: Status::Unmatched,
+            code: None,
+            name: None,
+            method: None,
+            score: 0.0,
+            note: note.into(),
+            candidates,
+        }
+    }
+}
+
+/// One unit of the reference (of any era), with its keys.
+#[derive(Debug, Clone)]
+struct Entry {
+    code: String,
+    name: String,
+    full_name: String,
+    /// Compact key of the name without description.
+    bare: String,
+    /// Canonical description key ("county", "censusarea"), or empty.
+    desc: String,
+    parent: Option<String>,
+    valid: YearSpan,
+    /// Valid in the matcher's vintage.
+    current: bool,
+}
+
+/// How confident an outcome of one reading is; the best reading wins.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+enum Grade {
+    Nothing,
+    Doubtful,
+    Ambiguous,
+    Fuzzy,
+    Sure,
+}
+
+/// A way of cutting a name into its bare part and description.
+#[derive(Debug, Clone, PartialEq, Eq)]
+struct Split {
+    bare: String,
+    desc: Option<String>,
+}
+
+/// Description words and their common abbreviations (common practice for
+/// US county equivalents), mapped to a canonical key.
+const US_DESCRIPTIONS: &[(&str, &str)] = &[
+    ("county", "county"),
+    ("co", "county"),
+    ("cnty", "county"),
+    ("cty", "county"),
+    ("cnt", "county"),
+    ("parish", "parish"),
+    ("par", "parish"),
+    ("borough", "borough"),
+    ("boro", "borough"),
+    ("bor", "borough"),
+    ("census area", "censusarea"),
+    ("ca", "censusarea"),
+    ("city", "city"),
+    ("city and borough", "cityandborough"),
+    ("municipality", "municipality"),
+    ("muni", "municipality"),
+    ("municipio", "municipio"),
+    ("planning region", "planningregion"),
+    ("district", "district"),
+    ("island", "island"),
+];
+
+/// Words that describe a state in a state-level match ("Washington State").
+const STATE_DESCRIPTIONS: &[(&str, &str)] = &[
+    ("state", "state"),
+    ("commonwealth", "state"),
+    ("territory", "state"),
+];
+
+/// True when a unit of description `unit` answers a name described as `asked`.
+fn compatible(asked: &str, unit: &str) -> bool {
+    asked == unit
+        || matches!(
+            (asked, unit),
+            ("city", "cityandborough") | ("city", "municipality") | ("borough", "cityandborough")
+        )
+}
+
+/// The matcher for one reference and one vintage. Build once, resolve many.
+#[derive(Debug)]
+pub struct Matcher<'r> {
+    vintage: u16,
+    codes: CodeForm,
+    entries: Vec<Entry>,
+    /// Bare key -> entries (every era).
+    by_bare: HashMap<String, Vec<usize>>,
+    /// Alias key -> entries valid in the vintage.
+    by_alias: HashMap<String, Vec<usize>>,
+    /// Code -> the entry valid in the vintage.
+    by_code: HashMap<String, usize>,
+    /// Code -> entries of other eras.
+    eras_by_code: HashMap<String, Vec<usize>>,
+    /// Parent code -> entries valid in the vintage (fuzzy blocking).
+    by_parent: BTreeMap<String, Vec<usize>>,
+    /// Entries valid in the vintage.
+    current: Vec<usize>,
+    /// Written forms of parents (compact key) -> parent code.
+    parents: HashMap<String, String>,
+    /// Parent code -> display name ("California").
+    parent_names: HashMap<String, String>,
+    /// Parent code -> short form ("TX"), where the reference has one.
+    parent_short: HashMap<String, String>,
+    /// Compact description forms -> canonical key.
+    descriptions: HashMap<String, String>,
+    changes_from: HashMap<String, Vec<&'r Change>>,
+    changes_to: HashMap<String, Vec<&'r Change>>,
+}
+
+impl<'r> Matcher<'r> {
+    /// Builds the indexes for `reference` as it stood in `vintage`.
+    pub fn new(reference: &'r Reference, vintage: u16, codes: CodeForm) -> Matcher<'r> {
+        let mut descriptions: HashMap<String, String> = HashMap::new();
+        let words = if codes == CodeForm::State {
+            STATE_DESCRIPTIONS
+        } else {
+            US_DESCRIPTIONS
+        };
+        for (form, canonical) in words {
+            descriptions.insert(key(form), canonical.to_string());
+        }
+        for u in &reference.units {
+            let k = key(&u.description);
+            if !k.is_empty() {
+                descriptions.entry(k.clone()).or_insert(k);
+            }
+        }
+        let mut m = Matcher {
+            vintage,
+            codes,
+            entries: Vec::with_capacity(reference.units.len()),
+            by_bare: HashMap::new(),
+            by_alias: HashMap::new(),
+            by_code: HashMap::new(),
+            eras_by_code: HashMap::new(),
+            by_parent: BTreeMap::new(),
+            current: Vec::new(),
+            parents: HashMap::new(),
+            parent_names: HashMap::new(),
+            parent_short: HashMap::new(),
+            descriptions,
+            changes_from: HashMap::new(),
+            changes_to: HashMap::new(),
+        };
+        for u in &reference.units {
+            let desc = key(&u.description);
+            let entry = Entry {
+                code: u.code.clone(),
+                name: u.name.clone(),
+                full_name: u.full_name(),
+                bare: key(&u.name),
+                desc: m.descriptions.get(&desc).cloned().unwrap_or(desc),
+                parent: u.parent.clone(),
+                valid: u.valid,
+                current: u.valid.contains(vintage),
+            };
+            let i = m.entries.len();
+            m.by_bare.entry(entry.bare.clone()).or_default().push(i);
+            if entry.current {
+                m.by_code.entry(entry.code.clone()).or_insert(i);
+                m.current.push(i);
+                if let Some(p) = &entry.parent {
+                    m.by_parent.entry(p.clone()).or_default().push(i);
+                }
+            } else {
+                m.eras_by_code
+                    .entry(entry.code.clone())
+                    .or_default()
+                    .push(i);
+            }
+            m.entries.push(entry);
+        }
+        for a in &reference.aliases {
+            if let Some(&i) = m.by_code.get(&a.code) {
+                let list = m.by_alias.entry(key(&a.alias)).or_default();
+                if !list.contains(&i) {
+                    list.push(i);
+                }
+            }
+        }
+        for p in &reference.parents {
+            m.parent_names.insert(p.code.clone(), p.name.clone());
+            if let Some(short) = &p.short {
+                m.parent_short.insert(p.code.clone(), short.clone());
+            }
+            let forms = std::iter::once(&p.name)
+                .chain(&p.short)
+                .chain(&p.abbreviations)
+                .chain(std::iter::once(&p.code));
+            for f in forms {
+                m.parents.entry(key(f)).or_insert_with(|| p.code.clone());
+            }
+        }
+        if reference.parents.is_empty() {
+            for e in &m.entries {
+                if let Some(p) = &e.parent {
+                    m.parents.entry(key(p)).or_insert_with(|| p.clone());
+                    m.parent_names.entry(p.clone()).or_insert_with(|| p.clone());
+                }
+            }
+        }
+        for c in &reference.changes {
+            m.changes_from
+                .entry(c.from_code.clone())
+                .or_default()
+                .push(c);
+            m.changes_to.entry(c.to_code.clone()).or_default().push(c);
+        }
+        m
+    }
+
+    /// The vintage year the matcher answers for.
+    pub fn vintage(&self) -> u16 {
+        self.vintage
+    }
+
+    /// True when the reference has parents (states), so a state column means
+    /// something.
+    pub fn has_parents(&self) -> bool {
+        !self.parents.is_empty()
+    }
+
+    /// The parent code for a written state form ("IL", "Ill.", "Illinois",
+    /// "17", "6" for 06), if known.
+    pub fn parent_of(&self, text: &str) -> Option<String> {
+        if let Some(code) = self.parents.get(&key(text)) {
+            return Some(code.clone());
+        }
+        let fips: StateFips = text.parse().ok()?;
+        self.parents.get(&fips.to_string()).cloned()
+    }
+
+    /// The unit valid in the vintage for a code as a user writes it in a
+    /// decisions file ("01001", or "1001" with the lost zero), as (code,
+    /// full name).
+    pub fn unit_for_code(&self, text: &str) -> Option<(&str, &str)> {
+        let t = text.trim();
+        let code = match self.by_code.get(t) {
+            Some(&i) => Some(i),
+            None => self
+                .normalized_code(t)
+                .and_then(|c| self.by_code.get(&c).copied()),
+        };
+        code.map(|i| {
+            (
+                self.entries[i].code.as_str(),
+                self.entries[i].full_name.as_str(),
+            )
+        })
+    }
+
+    fn normalized_code(&self, t: &str) -> Option<String> {
+        match self.codes {
+            CodeForm::County => t.parse::<CountyFips>().ok().map(|c| c.to_string()),
+            CodeForm::State => t.parse::<StateFips>().ok().map(|c| c.to_string()),
+            CodeForm::Plain => None,
+        }
+    }
+
+    /// A resolution for a user's decision: the unit with `code`, or
+    /// unmatched when `code` is `None` (the decision "none").
+    pub fn decided(&self, code: Option<&str>) -> Option<Resolution> {
+        match code {
+            None => Some(Resolution {
+                method: Some(Method::Decision),
+                ..Resolution::unmatched("decided: not a unit of this reference", Vec::new())
+            }),
+            Some(c) => {
+                let (code, name) = self.unit_for_code(c)?;
+                Some(Resolution::matched(
+                    code,
+                    name,
+                    Method::Decision,
+                    1.0,
+                    String::new(),
+                ))
+            }
+        }
+    }
+
+    fn candidate(&self, i: usize, score: f64) -> Candidate {
+        let e = &self.entries[i];
+        // "Harris County, TX": candidates from several states stay apart.
+        let name = match e.parent.as_ref().and_then(|p| self.parent_short.get(p)) {
+            Some(short) => format!("{}, {short}", e.full_name),
+            None => e.full_name.clone(),
+        };
+        Candidate {
+            code: e.code.clone(),
+            name,
+            score,
+        }
+    }
+
+    fn candidate_for_code(&self, code: &str, score: f64) -> Candidate {
+        match self.by_code.get(code) {
+            Some(&i) => self.candidate(i, score),
+            None => Candidate {
+                code: code.to_string(),
+                name: String::new(),
+                score,
+            },
+        }
+    }
+
+    fn place(&self, state: Option<&str>) -> String {
+        match state {
+            Some(s) => self
+                .parent_names
+                .get(s)
+                .cloned()
+                .unwrap_or_else(|| s.to_string()),
+            None => "the whole reference (no state given)".to_string(),
+        }
+    }
+
+    /// Resolves one name (and the state column's value, if there is one).
+    pub fn resolve(&self, name: &str, state: Option<&str>) -> Resolution {
+        let name = name.trim();
+        let state = match state.map(str::trim).filter(|s| !s.is_empty()) {
+            None => None,
+            Some(s) => match self.parent_of(s) {
+                Some(code) => Some(code),
+                None => {
+                    return Resolution::unmatched(
+                        format!("the state {s:?} is not one this reference knows"),
+                        Vec::new(),
+                    )
+                }
+            },
+        };
+        if looks_like_code(name) {
+            return self.resolve_code(name, state.as_deref());
+        }
+        if self.codes == CodeForm::Plain {
+            if let Some(&i) = self.by_code.get(name) {
+                let e = &self.entries[i];
+                return Resolution::matched(
+                    &e.code,
+                    &e.full_name,
+                    Method::Code,
+                    1.0,
+                    String::new(),
+                );
+            }
+        }
+        if is_placeholder(name) {
+            let why = if name.is_empty() {
+                "empty name"
+            } else {
+                "a placeholder, not a place"
+            };
+            return Resolution::unmatched(why, Vec::new());
+        }
+        let words = tokens(name);
+        let mut outcomes: Vec<(Grade, Resolution)> = Vec::new();
+        for (range, reading_state) in self.readings(&words, state.as_deref()) {
+            let s = reading_state.as_deref().or(state.as_deref());
+            outcomes.push(self.resolve_reading(&words[range], s));
+        }
+        let (grade, mut best) = combine(outcomes);
+        if best.method == Some(Method::Variant) {
+            let lower = name.to_lowercase();
+            if let Some(code) = &best.code {
+                if let Some(&i) = self.by_code.get(code) {
+                    let e = &self.entries[i];
+                    if lower == e.name.to_lowercase() || lower == e.full_name.to_lowercase() {
+                        best.method = Some(Method::Exact);
+                    }
+                }
+            }
+        }
+        self.check_state_name(name, state.as_deref(), grade, best)
+    }
+
+    /// A bare name that is also the name of a state ("New York" in NY,
+    /// "Hawaii") could mean the state total: review rather than match; a
+    /// state name that matched nothing is said to be a state.
+    fn check_state_name(
+        &self,
+        name: &str,
+        state: Option<&str>,
+        grade: Grade,
+        r: Resolution,
+    ) -> Resolution {
+        if !self.has_parents() {
+            return r;
+        }
+        let Some(parent) = self.parents.get(&key(name)) else {
+            return r;
+        };
+        if grade <= Grade::Doubtful {
+            // No unit has this name; near misses of a state name are noise.
+            return Resolution::unmatched(
+                format!("{name:?} names a state, not a unit of this level"),
+                Vec::new(),
+            );
+        }
+        if state.is_some_and(|s| s != parent.as_str()) {
+            return r;
+        }
+        match r.status {
+            Status::Matched if r.method != Some(Method::Alias) => {
+                let code = r.code.clone().unwrap_or_default();
+                let coextensive = self
+                    .by_code
+                    .get(&code)
+                    .is_some_and(|&i| self.entries[i].desc.is_empty());
+                if coextensive {
+                    return r;
+                }
+                let cand = vec![self.candidate_for_code(&code, 1.0)];
+                Resolution::review(
+                    format!("{name:?} is also the name of a state; the county or the state total?"),
+                    cand,
+                )
+            }
+            _ => r,
+        }
+    }
+
+    /// The ways to read a name: as a whole, or with a state written at its
+    /// end or start. Readings whose state disagrees with the column are
+    /// dropped.
+    fn readings(
+        &self,
+        words: &[Token],
+        column: Option<&str>,
+    ) -> Vec<(std::ops::Range<usize>, Option<String>)> {
+        let n = words.len();
+        let mut out = vec![(0..n, None)];
+        if !self.has_parents() || n < 2 {
+            return out;
+        }
+        let mut push = |range: std::ops::Range<usize>, code: &String| {
+            if column.is_none_or(|c| c == code.as_str()) && !out.iter().any(|(r, _)| *r == range) {
+                out.push((range, Some(code.clone())));
+            }
+        };
+        for k in 1..=4.min(n - 1) {
+            let tail = compact(&words[n - k..]);
+            if let Some(code) = self.parents.get(&tail) {
+                // "Nome CA", "Dekalb Co": a description abbreviation that is
+                // also a postal code counts as a state only after a comma.
+                if !self.descriptions.contains_key(&tail) || words[n - k].after_separator {
+                    push(0..n - k, code);
+                }
+            }
+            let head = compact(&words[..k]);
+            if let Some(code) = self.parents.get(&head) {
+                push(k..n, code);
+            }
+        }
+        out
+    }
+
+    /// Cuts of a name into bare part and description: the whole name first
+    /// (so "District of Columbia" and "Carson City" are names, not a
+    /// description), then an inverted form, then a trailing description.
+    fn splits(&self, words: &[Token]) -> Vec<Split> {
+        let n = words.len();
+        let mut out = vec![Split {
+            bare: compact(words),
+            desc: None,
+        }];
+        if let Some(j) = words.iter().position(|w| w.text == "of") {
+            if (1..=4).contains(&j) && j + 1 < n {
+                let head = compact(&words[..j]);
+                let bare = compact(&words[j + 1..]);
+                if head == "cityandcounty" || head == "state" || head == "commonwealth" {
+                    out.push(Split { bare, desc: None });
+                } else if let Some(d) = self.descriptions.get(&head) {
+                    out.push(Split {
+                        bare,
+                        desc: Some(d.clone()),
+                    });
+                }
+            }
+        }
+        for k in (1..=3).rev() {
+            if k < n {
+                if let Some(d) = self.descriptions.get(&compact(&words[n - k..])) {
+                    out.push(Split {
+                        bare: compact(&words[..n - k]),
+                        desc: Some(d.clone()),
+                    });
+                    break;
+                }
+            }
+        }
+        out
+    }
+
+    fn in_state(&self, i: usize, state: Option<&str>) -> bool {
+        state.is_none_or(|s| self.entries[i].parent.as_deref() == Some(s))
+    }
+
+    /// Entries (every era) with this bare key in the state: the index.
+    fn bare_hits(&self, bare: &str, state: Option<&str>) -> Vec<usize> {
+        self.by_bare.get(bare).map_or_else(Vec::new, |v| {
+            v.iter()
+                .copied()
+                .filter(|&i| self.in_state(i, state))
+                .collect()
+        })
+    }
+
+    /// Keeps the hits whose description answers `desc`; when none does, the
+    /// description is noise, except "city" (returns `None`: rejected).
+    fn by_description(&self, hits: Vec<usize>, desc: Option<&str>) -> Option<Vec<usize>> {
+        let Some(d) = desc else { return Some(hits) };
+        let kept: Vec<usize> = hits
+            .iter()
+            .copied()
+            .filter(|&i| compatible(d, &self.entries[i].desc))
+            .collect();
+        if !kept.is_empty() {
+            Some(kept)
+        } else if d == "city" && !hits.is_empty() {
+            None
+        } else {
+            Some(hits)
+        }
+    }
+
+    fn resolve_reading(&self, words: &[Token], state: Option<&str>) -> (Grade, Resolution) {
+        let splits = self.splits(words);
+        let mut rejected_city: Vec<usize> = Vec::new();
+        for split in &splits {
+            if split.bare.is_empty() {
+                continue;
+            }
+            let hits = self.bare_hits(&split.bare, state);
+            if hits.is_empty() {
+                continue;
+            }
+            match self.by_description(hits.clone(), split.desc.as_deref()) {
+                Some(kept) => return self.outcome_of_hits(&kept, state, split),
+                None => rejected_city.extend(hits.iter().filter(|&&i| self.entries[i].current)),
+            }
+        }
+        // Aliases: the whole name, then without its description.
+        for split in &splits {
+            if let Some(list) = self.by_alias.get(&split.bare) {
+                let hits: Vec<usize> = list
+                    .iter()
+                    .copied()
+                    .filter(|&i| self.in_state(i, state))
+                    .collect();
+                match hits.as_slice() {
+                    [] => {}
+                    [i] => {
+                        let e = &self.entries[*i];
+                        return (
+                            Grade::Sure,
+                            Resolution::matched(
+                                &e.code,
+                                &e.full_name,
+                                Method::Alias,
+                                1.0,
+                                String::new(),
+                            ),
+                        );
+                    }
+                    _ => {
+                        let c = hits.iter().map(|&i| self.candidate(i, 1.0)).collect();
+                        return (
+                            Grade::Ambiguous,
+                            Resolution::review("an alternative name of several units".into(), c),
+                        );
+                    }
+                }
+            }
+        }
+        if !rejected_city.is_empty() {
+            rejected_city.sort_by(|a, b| self.entries[*a].code.cmp(&self.entries[*b].code));
+            rejected_city.dedup();
+            let c = rejected_city
+                .iter()
+                .map(|&i| self.candidate(i, 1.0))
+                .collect();
+            return (
+                Grade::Nothing,
+                Resolution::unmatched(
+                    format!(
+                        "names a city that is not a county equivalent in {}; not put onto the county of the same name",
+                        self.place(state)
+                    ),
+                    c,
+                ),
+            );
+        }
+        // "County" left over from "Washington County" read as WA + "County"
+        // (Island County, WA is found above by its name).
+        if self.descriptions.contains_key(&compact(words)) {
+            return (
+                Grade::Nothing,
+                Resolution::unmatched("only a description, no name", Vec::new()),
+            );
+        }
+        // Fuzzy on the name without its description when it has one.
+        let primary = splits
+            .iter()
+            .filter(|s| !s.bare.is_empty())
+            .find(|s| s.desc.is_some())
+            .or(splits.first())
+            .cloned();
+        match primary {
+            Some(split) => self.fuzzy(&split, state),
+            None => (
+                Grade::Nothing,
+                Resolution::unmatched("only a description, no name", Vec::new()),
+            ),
+        }
+    }
+
+    /// Outcome of exact hits (current and other eras) for one split.
+    fn outcome_of_hits(
+        &self,
+        hits: &[usize],
+        state: Option<&str>,
+        split: &Split,
+    ) -> (Grade, Resolution) {
+        // Final codes in the vintage, with how each was reached.
+        let mut finals: BTreeMap<String, Option<String>> = BTreeMap::new();
+        let mut history_reviews: Vec<(String, Vec<String>)> = Vec::new();
+        for &i in hits {
+            let e = &self.entries[i];
+            if e.current {
+                finals.insert(e.code.clone(), None);
+                continue;
+            }
+            let (codes, note) = self.follow(i);
+            if codes.len() == 1 {
+                finals.entry(codes[0].clone()).or_insert(Some(note));
+            } else {
+                history_reviews.push((note, codes.clone()));
+                for c in codes {
+                    finals.entry(c).or_insert(None);
+                }
+            }
+        }
+        if history_reviews.is_empty() && finals.len() == 1 {
+            let (code, note) = finals.into_iter().next().expect("one final code");
+            let name = self
+                .by_code
+                .get(&code)
+                .map_or(String::new(), |&i| self.entries[i].full_name.clone());
+            return match note {
+                None => (
+                    Grade::Sure,
+                    Resolution::matched(&code, &name, Method::Variant, 1.0, String::new()),
+                ),
+                Some(note) => (
+                    Grade::Sure,
+                    Resolution::matched(&code, &name, Method::History, 1.0, note),
+                ),
+            };
+        }
+        if finals.is_empty() {
+            let names: Vec<String> = hits
+                .iter()
+                .map(|&i| self.entries[i].full_name.clone())
+                .collect();
+            return (
+                Grade::Nothing,
+                Resolution::unmatched(
+                    format!("{} has no successor in {}", names.join(", "), self.vintage),
+                    Vec::new(),
+                ),
+            );
+        }
+        let candidates: Vec<Candidate> = finals
+            .keys()
+            .map(|c| self.candidate_for_code(c, 1.0))
+            .collect();
+        let note = if hits.len() == 1 && history_reviews.len() == 1 {
+            history_reviews.remove(0).0
+        } else {
+            let what = match &split.desc {
+                Some(_) => "units share this name and description",
+                None => "units share this name",
+            };
+            format!("{} {what} in {}", candidates.len(), self.place(state))
+        };
+        (Grade::Ambiguous, Resolution::review(note, candidates))
+    }
+
+    /// Follows an entry of another era through the change history to codes
+    /// valid in the vintage, with a note.
+    fn follow(&self, i: usize) -> (Vec<String>, String) {
+        let e = &self.entries[i];
+        let mut steps: BTreeSet<(u16, ChangeKind, String)> = BTreeSet::new();
+        let mut finals: BTreeSet<String> = BTreeSet::new();
+        let forward = e.valid.to.is_some_and(|to| to < self.vintage);
+        if forward {
+            let after = e.valid.to.unwrap_or(self.vintage);
+            self.forward(&e.code, after, 0, &mut steps, &mut finals);
+        } else {
+            self.backward(&e.code, e.valid.from, 0, &mut steps, &mut finals);
+        }
+        let codes: Vec<String> = finals.into_iter().collect();
+        let mut steps_text: Vec<String> = steps
+            .iter()
+            .map(|(year, kind, to)| match kind {
+                ChangeKind::Absorbed if forward => format!("absorbed {year} into {to}"),
+                ChangeKind::Reorganized if !forward => format!("created {year} by reorganization"),
+                _ => format!("{} {year}", kind.as_str()),
+            })
+            .collect();
+        // One step per (year, kind) in words: a split names its year once.
+        steps_text.dedup();
+        let steps_text = if steps_text.is_empty() {
+            format!("named so until {}", e.valid.to.unwrap_or(0))
+        } else {
+            steps_text.join(", ")
+        };
+        let note = if forward {
+            match codes.as_slice() {
+                [_] => format!("{steps_text}; was {} {}", e.code, e.full_name),
+                [] => format!(
+                    "{steps_text}; was {} {}; no successor in {}",
+                    e.code, e.full_name, self.vintage
+                ),
+                _ => format!(
+                    "{steps_text}; was {} {}; successors: {}",
+                    e.code,
+                    e.full_name,
+                    codes.join(", ")
+                ),
+            }
+        } else {
+            let was = |c: &String| {
+                let n = self
+                    .by_code
+                    .get(c)
+                    .map_or("", |&i| self.entries[i].full_name.as_str());
+                format!("{c} {n}")
+            };
+            let then: Vec<String> = codes.iter().map(was).collect();
+            let first = format!("{} from {}", e.full_name, e.valid.from);
+            let steps_part = if steps.is_empty() {
+                String::new()
+            } else {
+                format!(" ({steps_text})")
+            };
+            match codes.as_slice() {
+                [] => format!("{first}{steps_part}; nothing before it in {}", self.vintage),
+                _ => format!(
+                    "{first}{steps_part}; in {}: {}",
+                    self.vintage,
+                    then.join(", ")
+                ),
+            }
+        };
+        (codes, note)
+    }
+
+    fn forward(
+        &self,
+        code: &str,
+        after: u16,
+        depth: u8,
+        steps: &mut BTreeSet<(u16, ChangeKind, String)>,
+        finals: &mut BTreeSet<String>,
+    ) {
+        if depth > 16 {
+            return;
+        }
+        let next: Vec<&Change> = self.changes_from.get(code).map_or_else(Vec::new, |v| {
+            v.iter()
+                .copied()
+                .filter(|c| {
+                    c.year > after
+                        && c.year <= self.vintage
+                        && matches!(
+                            c.kind,
+                            ChangeKind::Renamed
+                                | ChangeKind::Absorbed
+                                | ChangeKind::Split
+                                | ChangeKind::Reorganized
+                        )
+                })
+                .collect()
+        });
+        let Some(year) = next.iter().map(|c| c.year).min() else {
+            if self.by_code.contains_key(code) {
+                finals.insert(code.to_string());
+            }
+            return;
+        };
+        for c in next.iter().filter(|c| c.year == year) {
+            steps.insert((year, c.kind, c.to_code.clone()));
+            self.forward(&c.to_code, year, depth + 1, steps, finals);
+        }
+    }
+
+    fn backward(
+        &self,
+        code: &str,
+        before: u16,
+        depth: u8,
+        steps: &mut BTreeSet<(u16, ChangeKind, String)>,
+        finals: &mut BTreeSet<String>,
+    ) {
+        if depth > 16 {
+            return;
+        }
+        if self.by_code.contains_key(code) {
+            finals.insert(code.to_string());
+            return;
+        }
+        let prev: Vec<&Change> = self.changes_to.get(code).map_or_else(Vec::new, |v| {
+            v.iter()
+                .copied()
+                .filter(|c| {
+                    c.year <= before
+                        && c.year > self.vintage
+                        && matches!(
+                            c.kind,
+                            ChangeKind::Renamed
+                                | ChangeKind::Split
+                                | ChangeKind::Created
+                                | ChangeKind::Reorganized
+                        )
+                })
+                .collect()
+        });
+        let Some(year) = prev.iter().map(|c| c.year).max() else {
+            return;
+        };
+        for c in prev.iter().filter(|c| c.year == year) {
+            steps.insert((year, c.kind, c.from_code.clone()));
+            self.backward(&c.from_code, year - 1, depth + 1, steps, finals);
+        }
+    }
+
+    /// Jaro-Winkler over the units of the state (all units only when the
+    /// reference has no parents at all).
+    fn fuzzy(&self, split: &Split, state: Option<&str>) -> (Grade, Resolution) {
+        let national = state.is_none();
+        let pool: &[usize] = match state {
+            Some(s) => self.by_parent.get(s).map_or(&[], Vec::as_slice),
+            None => &self.current,
+        };
+        let scored = fuzzy_candidates(&self.entries, pool, &split.bare);
+        self.rank_fuzzy(scored, split, state, national && self.has_parents())
+    }
+
+    fn rank_fuzzy(
+        &self,
+        mut scored: Vec<(usize, f64)>,
+        split: &Split,
+        state: Option<&str>,
+        never_accept: bool,
+    ) -> (Grade, Resolution) {
+        // The description separates units of one name ("Baltimor city").
+        if let Some(d) = &split.desc {
+            let answered: Vec<String> = scored
+                .iter()
+                .filter(|(i, _)| compatible(d, &self.entries[*i].desc))
+                .map(|(i, _)| self.entries[*i].bare.clone())
+                .collect();
+            scored.retain(|(i, _)| {
+                let e = &self.entries[*i];
+                compatible(d, &e.desc) || !answered.contains(&e.bare)
+            });
+        }
+        scored.retain(|(_, s)| *s >= LIST_SCORE);
+        let candidates: Vec<Candidate> = scored
+            .iter()
+            .take(MAX_FUZZY_CANDIDATES)
+            .map(|&(i, s)| self.candidate(i, s))
+            .collect();
+        let Some(&(best_i, best)) = scored.first() else {
+            return (
+                Grade::Nothing,
+                Resolution::unmatched(
+                    format!("no unit of that name in {}", self.place(state)),
+                    Vec::new(),
+                ),
+            );
+        };
+        let runner = scored.get(1).map_or(0.0, |&(_, s)| s);
+        let city_mismatch = split.desc.as_deref() == Some("city")
+            && !compatible("city", &self.entries[best_i].desc);
+        if !never_accept && !city_mismatch && best >= ACCEPT_SCORE && best - runner >= ACCEPT_MARGIN
+        {
+            let e = &self.entries[best_i];
+            return (
+                Grade::Fuzzy,
+                Resolution::matched(&e.code, &e.full_name, Method::Fuzzy, best, String::new()),
+            );
+        }
+        if best >= REVIEW_SCORE {
+            let why = if never_accept {
+                "no exact name; similar names in other states (a state is needed to accept a near match)".to_string()
+            } else if best >= ACCEPT_SCORE {
+                format!(
+                    "close names too near each other (margin {:.3})",
+                    best - runner
+                )
+            } else {
+                "no exact name; similar names only".to_string()
+            };
+            return (Grade::Doubtful, Resolution::review(why, candidates));
+        }
+        (
+            Grade::Nothing,
+            Resolution::unmatched(
+                format!("no unit of that name in {}", self.place(state)),
+                candidates,
+            ),
+        )
+    }
+
+    fn resolve_code(&self, text: &str, state: Option<&str>) -> Resolution {
+        let digits: String = {
+            let t = text.trim();
+            let t = t.strip_suffix(".0").unwrap_or(t);
+            t.chars().filter(|c| c.is_ascii_digit()).collect()
+        };
+        let code = match self.codes {
+            CodeForm::County => match digits.len() {
+                4 | 5 => text
+                    .parse::<CountyFips>()
+                    .map(|c| c.to_string())
+                    .map_err(|e| e.to_string()),
+                1..=3 => match state {
+                    None => Err(format!(
+                        "{text:?} is a county number; give a state column to read it"
+                    )),
+                    Some(s) => {
+                        let n: u16 = digits.parse().unwrap_or(0);
+                        s.parse::<StateFips>()
+                            .ok()
+                            .and_then(|st| CountyFips::new(st, n))
+                            .map(|c| c.to_string())
+                            .ok_or_else(|| format!("{text:?} is not a county number (001-999)"))
+                    }
+                },
+                _ => Err(format!(
+                    "{text:?} is not a county FIPS code (4 or 5 digits)"
+                )),
+            },
+            CodeForm::State => text
+                .parse::<StateFips>()
+                .map(|c| c.to_string())
+                .map_err(|e| e.to_string()),
+            CodeForm::Plain => Ok(text.to_string()),
+        };
+        let code = match code {
+            Ok(c) => c,
+            Err(why) => return Resolution::unmatched(why, Vec::new()),
+        };
+        if let (Some(s), Some(parent)) = (state, self.entries_parent_of_code(&code)) {
+            if s != parent {
+                let c = vec![self.candidate_for_code(&code, 1.0)];
+                return Resolution::review(
+                    format!(
+                        "code {code} lies in {}, but the state column says {}",
+                        self.place(Some(&parent)),
+                        self.place(Some(s))
+                    ),
+                    c,
+                );
+            }
+        }
+        if let Some(&i) = self.by_code.get(&code) {
+            let e = &self.entries[i];
+            return Resolution::matched(&e.code, &e.full_name, Method::Code, 1.0, String::new());
+        }
+        if let Some(eras) = self.eras_by_code.get(&code) {
+            // The era nearest the vintage speaks for the code.
+            let i = *eras
+                .iter()
+                .min_by_key(|&&i| {
+                    let v = self.entries[i].valid;
+                    if v.to.is_some_and(|to| to < self.vintage) {
+                        self.vintage - v.to.unwrap_or(0)
+                    } else {
+                        v.from.saturating_sub(self.vintage)
+                    }
+                })
+                .expect("eras are never empty");
+            let (codes, note) = self.follow(i);
+            return match codes.as_slice() {
+                [c] => {
+                    let name = self
+                        .by_code
+                        .get(c)
+                        .map_or(String::new(), |&j| self.entries[j].full_name.clone());
+                    Resolution::matched(c, &name, Method::History, 1.0, note)
+                }
+                [] => Resolution::unmatched(note, Vec::new()),
+                _ => Resolution::review(
+                    note,
+                    codes
+                        .iter()
+                        .map(|c| self.candidate_for_code(c, 1.0))
+                        .collect(),
+                ),
+            };
+        }
+        Resolution::unmatched(
+            format!("code {code} is not a unit in {}", self.vintage),
+            Vec::new(),
+        )
+    }
+
+    fn entries_parent_of_code(&self, code: &str) -> Option<String> {
+        let i = self
+            .by_code
+            .get(code)
+            .copied()
+            .or_else(|| self.eras_by_code.get(code).and_then(|v| v.first().copied()))?;
+        self.entries[i].parent.clone()
+    }
+
+    /// Naive twin of the bare-name index, for tests: scans every entry.
+    #[cfg(test)]
+    fn bare_hits_naive(&self, bare: &str, state: Option<&str>) -> Vec<usize> {
+        (0..self.entries.len())
+            .filter(|&i| self.entries[i].bare == bare && self.in_state(i, state))
+            .collect()
+    }
+}
+
+/// Scores `query` against the bare names of `pool`, best first (ties by
+/// code, so the order is deterministic).
+fn fuzzy_candidates(entries: &[Entry], pool: &[usize], query: &str) -> Vec<(usize, f64)> {
+    let mut scored: Vec<(usize, f64)> = pool
+        .iter()
+        .map(|&i| (i, strsim::jaro_winkler(query, &entries[i].bare)))
+        .collect();
+    scored.sort_by(|a, b| {
+        b.1.total_cmp(&a.1)
+            .then_with(|| entries[a.0].code.cmp(&entries[b.0].code))
+    });
+    scored
+}
+
+/// True when the name is written as a number ("1001", "6037.0", "06 037").
+fn looks_like_code(name: &str) -> bool {
+    name.chars().any(|c| c.is_ascii_digit())
+        && name
+            .chars()
+            .all(|c| c.is_ascii_digit() || matches!(c, '.' | ' ' | '-'))
+}
+
+/// Picks the best of the readings' outcomes. Matched readings that agree
+/// win; matched readings that disagree, or several equally good reviews,
+/// make one review with all their candidates.
+fn combine(outcomes: Vec<(Grade, Resolution)>) -> (Grade, Resolution) {
+    let top = outcomes
+        .iter()
+        .map(|(g, _)| *g)
+        .max()
+        .unwrap_or(Grade::Nothing);
+    let mut best: Vec<Resolution> = outcomes
+        .into_iter()
+        .filter(|(g, _)| *g == top)
+        .map(|(_, r)| r)
+        .collect();
+    if best.len() == 1 {
+        return (top, best.remove(0));
+    }
+    if top == Grade::Nothing {
+        let i = best
+            .iter()
+            .position(|r| !r.candidates.is_empty())
+            .unwrap_or(0);
+        return (top, best.swap_remove(i));
+    }
+    if top >= Grade::Fuzzy {
+        let first = best[0].code.clone();
+        if best.iter().all(|r| r.code == first) {
+            return (top, best.remove(0));
+        }
+        let mut candidates: Vec<Candidate> = best
+            .iter()
+            .map(|r| Candidate {
+                code: r.code.clone().unwrap_or_default(),
+                name: r.name.clone().unwrap_or_default(),
+                score: r.score,
+            })
+            .collect();
+        sort_candidates(&mut candidates);
+        return (
+            Grade::Ambiguous,
+            Resolution::review(
+                "the name reads several ways (is part of it a state?)".into(),
+                candidates,
+            ),
+        );
+    }
+    let note = best[0].note.clone();
+    let mut candidates: Vec<Candidate> = best.into_iter().flat_map(|r| r.candidates).collect();
+    sort_candidates(&mut candidates);
+    (top, Resolution::review(note, candidates))
+}
+
+/// Best score first, then code; one entry per code.
+fn sort_candidates(c: &mut Vec<Candidate>) {
+    c.sort_by(|a, b| {
+        b.score
+            .total_cmp(&a.score)
+            .then_with(|| a.code.cmp(&b.code))
+    });
+    let mut seen = std::collections::HashSet::new();
+    c.retain(|x| seen.insert(x.code.clone()));
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::core::reference::{Parent, Unit};
+
+    fn unit(code: &str, name: &str, description: &str, from: u16, to: Option<u16>) -> Unit {
+        Unit {
+            code: code.into(),
+            name: name.into(),
+            description: description.into(),
+            parent: Some(code[..2].into()),
+            valid: YearSpan { from, to },
+        }
+    }
+
+    fn parent(code: &str, short: &str, name: &str) -> Parent {
+        Parent {
+            code: code.into(),
+            name: name.into(),
+            short: Some(short.into()),
+            abbreviations: Vec::new(),
+            kind: "state".into(),
+        }
+    }
+
+    /// A few real units (codes and names as in the Census Bureau's lists,
+    /// copied from `reference/us/counties.csv`).
+    fn sample() -> Reference {
+        Reference {
+            label: "sample".into(),
+            parents: vec![
+                parent("24", "MD", "Maryland"),
+                parent("51", "VA", "Virginia"),
+                parent("22", "LA", "Louisiana"),
+                parent("02", "AK", "Alaska"),
+            ],
+            units: vec![
+                unit("24005", "Baltimore", "County", 1970, None),
+                unit("24510", "Baltimore", "city", 1970, None),
+                unit("24031", "Montgomery", "County", 1970, None),
+                unit("51059", "Fairfax", "County", 1970, None),
+                unit("51600", "Fairfax", "city", 1970, None),
+                unit("51019", "Bedford", "County", 1970, None),
+                unit("51515", "Bedford", "city", 1970, Some(2012)),
+                unit("22071", "Orleans", "Parish", 1970, None),
+                unit("02270", "Wade Hampton", "Census Area", 1970, Some(2014)),
+                unit("02158", "Kusilvak", "Census Area", 2015, None),
+            ],
+            changes: vec![
+                Change {
+                    year: 2013,
+                    kind: ChangeKind::Absorbed,
+                    from_code: "51515".into(),
+                    from_name: "Bedford city".into(),
+                    to_code: "51019".into(),
+                    to_name: "Bedford County".into(),
+                    note: String::new(),
+                    source: String::new(),
+                },
+                Change {
+                    year: 2015,
+                    kind: ChangeKind::Renamed,
+                    from_code: "02270".into(),
+                    from_name: "Wade Hampton Census Area".into(),
+                    to_code: "02158".into(),
+                    to_name: "Kusilvak Census Area".into(),
+                    note: String::new(),
+                    source: String::new(),
+                },
+            ],
+            aliases: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn the_description_decides_between_units_that_share_a_name() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        assert_eq!(
+            m.resolve("Fairfax city", Some("VA")).code.as_deref(),
+            Some("51600")
+        );
+        assert_eq!(
+            m.resolve("Fairfax County", Some("VA")).code.as_deref(),
+            Some("51059")
+        );
+        assert_eq!(
+            m.resolve("Fairfax Co.", Some("Virginia")).code.as_deref(),
+            Some("51059")
+        );
+        assert_eq!(
+            m.resolve("Baltimore City", Some("24")).code.as_deref(),
+            Some("24510")
+        );
+    }
+
+    #[test]
+    fn a_bare_name_shared_by_two_units_goes_to_review_with_both() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        let res = m.resolve("Baltimore", Some("MD"));
+        assert_eq!(res.status, Status::Review);
+        let codes: Vec<&str> = res.candidates.iter().map(|c| c.code.as_str()).collect();
+        assert_eq!(codes, ["24005", "24510"]);
+    }
+
+    #[test]
+    fn a_description_no_unit_of_the_name_has_is_noise_except_city() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        assert_eq!(
+            m.resolve("Orleans County", Some("LA")).code.as_deref(),
+            Some("22071")
+        );
+        let res = m.resolve("Montgomery city", Some("MD"));
+        assert_eq!(res.status, Status::Unmatched, "{res:?}");
+        assert_eq!(res.candidates[0].code, "24031");
+    }
+
+    #[test]
+    fn history_follows_renames_forward_and_back_and_absorptions_forward() {
+        let r = sample();
+        let now = Matcher::new(&r, 2023, CodeForm::County);
+        let res = now.resolve("Wade Hampton", Some("AK"));
+        assert_eq!(
+            (res.code.as_deref(), res.method),
+            (Some("02158"), Some(Method::History))
+        );
+        assert!(
+            res.note.starts_with("renamed 2015; was 02270"),
+            "{}",
+            res.note
+        );
+        let res = now.resolve("Bedford city", Some("VA"));
+        assert_eq!(
+            (res.code.as_deref(), res.method),
+            (Some("51019"), Some(Method::History))
+        );
+        let then = Matcher::new(&r, 2010, CodeForm::County);
+        let res = then.resolve("Kusilvak", Some("AK"));
+        assert_eq!(
+            (res.code.as_deref(), res.method),
+            (Some("02270"), Some(Method::History))
+        );
+        assert_eq!(
+            then.resolve("Bedford city", Some("VA")).code.as_deref(),
+            Some("51515")
+        );
+    }
+
+    #[test]
+    fn fuzzy_accepts_a_clear_typo_and_reviews_a_tie() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        let res = m.resolve("Montgomerry", Some("MD"));
+        assert_eq!(
+            (res.code.as_deref(), res.method),
+            (Some("24031"), Some(Method::Fuzzy))
+        );
+        assert!(res.score >= ACCEPT_SCORE && res.score < 1.0);
+        // "Baltimor" is as close to the county as to the city.
+        let res = m.resolve("Baltimor", Some("MD"));
+        assert_eq!(res.status, Status::Review);
+        // With a description, the typo is settled.
+        assert_eq!(
+            m.resolve("Baltimor city", Some("MD")).code.as_deref(),
+            Some("24510")
+        );
+    }
+
+    #[test]
+    fn the_bare_name_index_agrees_with_a_scan_of_every_unit() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        let queries: Vec<String> = r
+            .units
+            .iter()
+            .map(|u| key(&u.name))
+            .chain(["nowhere".to_string()])
+            .collect();
+        for q in &queries {
+            for s in [None, Some("24"), Some("51"), Some("02"), Some("99")] {
+                assert_eq!(m.bare_hits(q, s), m.bare_hits_naive(q, s), "{q} in {s:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn fuzzy_candidates_are_ranked_best_first_with_ties_broken_by_code() {
+        let r = sample();
+        let m = Matcher::new(&r, 2023, CodeForm::County);
+        let pool = m.by_parent.get("24").unwrap();
+        let ranked = fuzzy_candidates(&m.entries, pool, "baltimore");
+        let codes: Vec<&str> = ranked
+            .iter()
+            .map(|(i, _)| m.entries[*i].code.as_str())
+            .collect();
+        assert_eq!(codes, ["24005", "24510", "24031"]);
+        assert_eq!(ranked[0].1, 1.0);
+    }
+}

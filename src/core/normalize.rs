@@ -1,1 +1,316 @@
-//! Name normalization (being written).
+//! Name normalization: the forms a place name is typed in, reduced to one
+//! key so that "Doña Ana", "DONA ANA", "DoÃ±a Ana" (UTF-8 read as Latin-1),
+//! "Prince Georges", "De Kalb" and "St. Louis" / "Saint Louis" compare equal.
+//!
+//! The steps, in order:
+//!
+//! 1. [`repair_mojibake`]: text that was UTF-8 decoded as Latin-1 or
+//!    Windows-1252 ("DoÃ±a") is turned back into what was meant ("Doña").
+//! 2. [`tokens`]: Unicode compatibility decomposition, combining marks
+//!    (diacritics) dropped, lower case; apostrophes (straight, curly,
+//!    backtick) and the Hawaiian ʻokina dropped so "Prince George's" and
+//!    "Prince Georges" agree; `&` becomes the word `and`; every other
+//!    non-alphanumeric character separates words. "St", "Ste", "Sainte"
+//!    become `saint`, "Ft" becomes `fort` (common practice in US place
+//!    names).
+//! 3. [`compact`]: the words joined without spaces, so spacing inside a name
+//!    does not matter ("De Kalb" = "DeKalb", "La Salle" = "LaSalle").
+//!
+//! Each word remembers whether a strong separator (comma, colon, semicolon,
+//! slash, parenthesis, or a dash with a space beside it) came before it;
+//! the matcher uses this to tell "Nome CA" (census area) from "Nome, CA".
+
+use std::borrow::Cow;
+
+use unicode_normalization::char::is_combining_mark;
+use unicode_normalization::UnicodeNormalization;
+
+/// A word of a normalized name.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Token {
+    /// The word: lower case ASCII letters and digits (other letters kept as
+    /// they are after removing diacritics).
+    pub text: String,
+    /// True when a strong separator (`,` `:` `;` `/` `(` `)` `|` or a dash
+    /// next to a space) stood between this word and the one before it.
+    pub after_separator: bool,
+}
+
+/// Windows-1252 bytes 0x80..=0x9F and the characters they decode to.
+const CP1252_HIGH: [char; 32] = [
+    '\u{20AC}', '\u{81}', '\u{201A}', '\u{0192}', '\u{201E}', '\u{2026}', '\u{2020}', '\u{2021}',
+    '\u{02C6}', '\u{2030}', '\u{0160}', '\u{2039}', '\u{0152}', '\u{8D}', '\u{017D}', '\u{8F}',
+    '\u{90}', '\u{2018}', '\u{2019}', '\u{201C}', '\u{201D}', '\u{2022}', '\u{2013}', '\u{2014}',
+    '\u{02DC}', '\u{2122}', '\u{0161}', '\u{203A}', '\u{0153}', '\u{9D}', '\u{017E}', '\u{0178}',
+];
+
+fn cp1252_byte(c: char) -> Option<u8> {
+    let n = c as u32;
+    if n < 0x80 || (0xA0..=0xFF).contains(&n) {
+        return Some(n as u8);
+    }
+    CP1252_HIGH
+        .iter()
+        .position(|&h| h == c)
+        .map(|i| 0x80 + i as u8)
+}
+
+/// Repairs text that was UTF-8 but decoded as Latin-1 / Windows-1252
+/// ("DoÃ±a Ana" -> "Doña Ana", "MayagÃ¼ez" -> "Mayagüez"). Text that does
+/// not look like such a mis-decoding is returned unchanged.
+pub fn repair_mojibake(text: &str) -> Cow<'_, str> {
+    // A mis-decoded multi-byte sequence starts with a lead byte 0xC2..=0xF4,
+    // which Latin-1 shows as one of "Â".."ô".
+    if !text.chars().any(|c| ('\u{C2}'..='\u{F4}').contains(&c)) {
+        return Cow::Borrowed(text);
+    }
+    let mut bytes = Vec::with_capacity(text.len());
+    for c in text.chars() {
+        match cp1252_byte(c) {
+            Some(b) => bytes.push(b),
+            None => return Cow::Borrowed(text),
+        }
+    }
+    match String::from_utf8(bytes) {
+        Ok(repaired) if repaired != text => Cow::Owned(repaired),
+        _ => Cow::Borrowed(text),
+    }
+}
+
+fn is_apostrophe(c: char) -> bool {
+    matches!(
+        c,
+        '\'' | '\u{2018}'
+            | '\u{2019}'
+            | '\u{02BB}'
+            | '\u{02BC}'
+            | '\u{0060}'
+            | '\u{00B4}'
+            | '\u{02B9}'
+    )
+}
+
+fn is_dash(c: char) -> bool {
+    matches!(c, '-' | '\u{2010}'..='\u{2015}' | '\u{2212}')
+}
+
+fn is_strong_separator(c: char) -> bool {
+    matches!(c, ',' | ':' | ';' | '/' | '(' | ')' | '|' | '[' | ']')
+}
+
+/// Rewrites a word to its usual long form (common practice for US place
+/// names): St/Ste/Sainte -> saint, Ft -> fort.
+fn canonical_word(word: String) -> String {
+    match word.as_str() {
+        "st" | "ste" | "sainte" | "saint" => "saint".to_string(),
+        "ft" => "fort".to_string(),
+        _ => word,
+    }
+}
+
+/// Splits a name into normalized words (see the module documentation).
+pub fn tokens(text: &str) -> Vec<Token> {
+    let repaired = repair_mojibake(text);
+    let chars: Vec<char> = repaired.nfkd().filter(|c| !is_combining_mark(*c)).collect();
+    let mut out: Vec<Token> = Vec::new();
+    let mut word = String::new();
+    let mut separator = false;
+    fn flush(word: &mut String, separator: &mut bool, out: &mut Vec<Token>) {
+        if !word.is_empty() {
+            out.push(Token {
+                text: canonical_word(std::mem::take(word)),
+                after_separator: *separator,
+            });
+            *separator = false;
+        }
+    }
+    for (i, &c) in chars.iter().enumerate() {
+        if is_apostrophe(c) {
+            // Dropped inside a word: "George's" = "Georges", "Hawaiʻi" = "Hawaii".
+            // (Checked first: the ʻokina is a modifier letter, alphanumeric.)
+        } else if c.is_alphanumeric() {
+            word.extend(c.to_lowercase());
+        } else if c == '&' {
+            flush(&mut word, &mut separator, &mut out);
+            out.push(Token {
+                text: "and".to_string(),
+                after_separator: separator,
+            });
+            separator = false;
+        } else {
+            flush(&mut word, &mut separator, &mut out);
+            let spaced = |j: Option<usize>| {
+                j.and_then(|j| chars.get(j))
+                    .is_some_and(|c| c.is_whitespace())
+            };
+            if is_strong_separator(c)
+                || (is_dash(c) && (spaced(i.checked_sub(1)) || spaced(Some(i + 1))))
+            {
+                // A leading separator (", Cook") separates nothing.
+                separator = !out.is_empty();
+            }
+        }
+    }
+    flush(&mut word, &mut separator, &mut out);
+    out
+}
+
+/// The words joined without spaces: the key names are compared by.
+pub fn compact<'a>(words: impl IntoIterator<Item = &'a Token>) -> String {
+    let mut s = String::new();
+    for w in words {
+        s.push_str(&w.text);
+    }
+    s
+}
+
+/// The compact key of a text: `compact(&tokens(text))`.
+pub fn key(text: &str) -> String {
+    compact(&tokens(text))
+}
+
+/// Words that stand for "no place" in agency tables: totals, unknowns,
+/// out-of-state rows, empty cells. Compared by [`key`]. (Common practice;
+/// the list is ours.)
+pub const PLACEHOLDERS: &[&str] = &[
+    "",
+    "statewide",
+    "state wide",
+    "state total",
+    "total",
+    "totals",
+    "grand total",
+    "all",
+    "all counties",
+    "unknown",
+    "unk",
+    "unknown county",
+    "county unknown",
+    "out of state",
+    "out of county",
+    "outside state",
+    "non resident",
+    "nonresident",
+    "other",
+    "others",
+    "other county",
+    "n a",
+    "na",
+    "none",
+    "null",
+    "nil",
+    "missing",
+    "not reported",
+    "not available",
+    "not stated",
+    "not specified",
+    "unspecified",
+    "unassigned",
+    "unallocated",
+    "pending",
+    "various",
+    "multiple",
+    "multiple counties",
+    "foreign",
+    "international",
+    "redacted",
+    "suppressed",
+    "?",
+    "-",
+];
+
+/// True when the text is a placeholder rather than a place (see
+/// [`PLACEHOLDERS`]).
+pub fn is_placeholder(text: &str) -> bool {
+    let k = key(text);
+    PLACEHOLDERS.iter().any(|p| key(p) == k)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn words(text: &str) -> Vec<String> {
+        tokens(text).into_iter().map(|t| t.text).collect()
+    }
+
+    #[test]
+    fn diacritics_and_case_do_not_matter() {
+        assert_eq!(key("Doña Ana"), key("DONA ANA"));
+        assert_eq!(key("Mayagüez"), "mayaguez");
+        assert_eq!(key("Doña Ana"), "donaana");
+    }
+
+    #[test]
+    fn utf8_read_as_latin1_is_repaired() {
+        assert_eq!(repair_mojibake("DoÃ±a Ana"), "Doña Ana");
+        assert_eq!(repair_mojibake("MayagÃ¼ez"), "Mayagüez");
+        assert_eq!(key("DoÃ±a Ana"), "donaana");
+        // Genuine Latin-1 letters that do not form UTF-8 are left alone.
+        assert_eq!(repair_mojibake("Ãx"), "Ãx");
+        assert_eq!(repair_mojibake("Doña Ana"), "Doña Ana");
+    }
+
+    #[test]
+    fn okina_and_apostrophes_in_every_form_are_dropped() {
+        assert_eq!(key("Hawaiʻi"), "hawaii");
+        assert_eq!(key("Hawai'i"), "hawaii");
+        assert_eq!(key("Prince George’s"), key("Prince Georges"));
+        assert_eq!(key("Prince George's"), "princegeorges");
+        assert_eq!(key("St. Mary`s"), key("Saint Marys"));
+    }
+
+    #[test]
+    fn saint_forms_and_fort_agree() {
+        assert_eq!(key("St. Louis"), "saintlouis");
+        assert_eq!(key("St Louis"), "saintlouis");
+        assert_eq!(key("Saint Louis"), "saintlouis");
+        assert_eq!(key("Ste. Genevieve"), key("Sainte Genevieve"));
+        assert_eq!(key("Ft. Bend"), key("Fort Bend"));
+    }
+
+    #[test]
+    fn spacing_hyphens_and_ampersands_inside_names_do_not_matter() {
+        assert_eq!(key("De Kalb"), key("DeKalb"));
+        assert_eq!(key("Miami-Dade"), key("Miami Dade"));
+        assert_eq!(key("Miami–Dade"), key("MiamiDade"));
+        assert_eq!(key("Lake & Peninsula"), key("Lake and Peninsula"));
+        assert_eq!(words("  Lake&Peninsula  "), ["lake", "and", "peninsula"]);
+    }
+
+    #[test]
+    fn strong_separators_are_remembered_but_hyphens_inside_names_are_not() {
+        let t = tokens("Cook County, IL");
+        assert_eq!(
+            t.iter().map(|t| t.after_separator).collect::<Vec<_>>(),
+            [false, false, true]
+        );
+        let t = tokens("IL - Cook County");
+        assert!(t[1].after_separator);
+        let t = tokens("Miami-Dade");
+        assert!(!t[1].after_separator);
+        let t = tokens("TX: Harris");
+        assert!(t[1].after_separator);
+        assert!(!tokens(", Cook")[0].after_separator);
+    }
+
+    #[test]
+    fn placeholders_are_recognized_in_any_spelling() {
+        for p in [
+            "Statewide",
+            "UNKNOWN",
+            "Out of State",
+            "out-of-state",
+            "Total",
+            "N/A",
+            "",
+            "  ",
+            "n.a.",
+        ] {
+            assert!(is_placeholder(p), "{p:?}");
+        }
+        for p in ["Cook", "Washington", "Otero"] {
+            assert!(!is_placeholder(p), "{p:?}");
+        }
+    }
+}

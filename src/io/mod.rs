@@ -6,5 +6,6 @@ pub mod crosswalk_file;
 pub mod geo;
 pub mod output;
 pub mod progress;
+pub mod review;
 pub mod svg;
 pub mod table;

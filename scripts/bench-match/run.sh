@@ -1,0 +1,18 @@
+#!/bin/sh
+# Benchmark of `regionkey match` end to end: 1,000,000 messy rows, CSV in ->
+# CSV out, release build. Reports wall time and peak memory (maximum
+# resident set size) from /usr/bin/time -v.
+#
+#   sh scripts/bench-match/run.sh            # from the repository root
+#
+# Goal: under 3 s wall and under 1 GiB peak on a 2-core machine.
+set -eu
+WORK=${WORK:-/tmp/regionkey-bench-match}
+mkdir -p "$WORK"
+cargo build --release --bin regionkey
+BIN=${CARGO_TARGET_DIR:-target}/release/regionkey
+[ -f "$WORK/input.csv" ] || python3 scripts/bench-match/generate.py "$WORK/input.csv" 1000000 2023
+/usr/bin/time -v "$BIN" match "$WORK/input.csv" --name-column county_name --state-column state \
+    --output "$WORK/output.csv" --review "$WORK/review.csv" 2>"$WORK/time.txt" || { cat "$WORK/time.txt"; exit 1; }
+grep -E "regionkey match|matched|review |unmatched|Elapsed|Maximum resident" "$WORK/time.txt"
+wc -l "$WORK/input.csv" "$WORK/output.csv" "$WORK/review.csv"
