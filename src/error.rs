@@ -20,7 +20,11 @@ pub struct Location {
 impl Location {
     /// A location naming only a file.
     pub fn file(path: impl Into<PathBuf>) -> Self {
-        Location { path: path.into(), line: None, column: None }
+        Location {
+            path: path.into(),
+            line: None,
+            column: None,
+        }
     }
 
     /// Adds a line (or record) number.
@@ -89,12 +93,19 @@ pub enum Error {
 impl Error {
     /// An input error at a location.
     pub fn input(location: Location, message: impl Into<String>) -> Self {
-        Error::Input { location, message: message.into() }
+        Error::Input {
+            location,
+            message: message.into(),
+        }
     }
 
     /// An I/O error on a path.
     pub fn io(path: impl Into<PathBuf>, action: &'static str, source: std::io::Error) -> Self {
-        Error::Io { path: path.into(), action, source }
+        Error::Io {
+            path: path.into(),
+            action,
+            source,
+        }
     }
 
     /// True when this is a broken pipe on output (the reader went away):

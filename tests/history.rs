@@ -63,12 +63,18 @@ fn connecticut_counties_are_divided_among_planning_regions() {
     match carry(us_counties().unwrap(), "09003", 2023) {
         Carried::Divided { successors, .. } => {
             assert!(successors.contains(&"09110".to_string()), "{successors:?}");
-            assert!(successors.iter().all(|s| s.starts_with("091")), "{successors:?}");
+            assert!(
+                successors.iter().all(|s| s.starts_with("091")),
+                "{successors:?}"
+            );
         }
         other => panic!("Hartford County should be divided, got {other:?}"),
     }
     // And a planning region maps back onto several counties.
-    assert!(matches!(carry(us_counties().unwrap(), "09110", 2020), Carried::Divided { .. }));
+    assert!(matches!(
+        carry(us_counties().unwrap(), "09110", 2020),
+        Carried::Divided { .. }
+    ));
 }
 
 #[test]
@@ -84,7 +90,10 @@ fn a_unit_formed_from_several_is_divided_going_back() {
 
 #[test]
 fn an_unknown_code_is_unknown() {
-    assert_eq!(carry(us_counties().unwrap(), "99999", 2023), Carried::Unknown);
+    assert_eq!(
+        carry(us_counties().unwrap(), "99999", 2023),
+        Carried::Unknown
+    );
 }
 
 #[test]
@@ -93,14 +102,24 @@ fn lineage_tells_names_and_changes_in_year_order() {
     assert!(events.len() >= 2, "{events:?}");
     assert_eq!(events[0].event, "era");
     assert!(events[0].text.contains("Wade Hampton"), "{events:?}");
-    assert!(events.iter().any(|e| e.event == "renamed" && e.text.contains("Kusilvak")));
+    assert!(events
+        .iter()
+        .any(|e| e.event == "renamed" && e.text.contains("Kusilvak")));
     assert!(events.windows(2).all(|w| w[0].year <= w[1].year));
 }
 
 #[test]
 fn history_command_prints_a_units_story_by_code_or_name() {
-    let out = Command::cargo_bin("regionkey").unwrap().args(["history", "46113"]).output().unwrap();
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = Command::cargo_bin("regionkey")
+        .unwrap()
+        .args(["history", "46113"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("Shannon County"), "{text}");
     assert!(text.contains("Oglala Lakota"), "{text}");
@@ -110,7 +129,11 @@ fn history_command_prints_a_units_story_by_code_or_name() {
         .args(["history", "Valdez-Cordova", "--format", "csv"])
         .output()
         .unwrap();
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.starts_with("year,event,code,text,source\n"), "{text}");
     assert!(text.contains("02063") && text.contains("02066"), "{text}");
@@ -118,7 +141,11 @@ fn history_command_prints_a_units_story_by_code_or_name() {
 
 #[test]
 fn history_of_an_unknown_name_says_so() {
-    let out = Command::cargo_bin("regionkey").unwrap().args(["history", "Atlantis"]).output().unwrap();
+    let out = Command::cargo_bin("regionkey")
+        .unwrap()
+        .args(["history", "Atlantis"])
+        .output()
+        .unwrap();
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("Atlantis"));
 }

@@ -36,7 +36,10 @@ pub struct Args {
 }
 
 fn squash(text: &str) -> String {
-    text.chars().filter(|c| c.is_alphanumeric()).flat_map(char::to_lowercase).collect()
+    text.chars()
+        .filter(|c| c.is_alphanumeric())
+        .flat_map(char::to_lowercase)
+        .collect()
 }
 
 /// Codes whose name (with or without description, in any era) is `query`.
@@ -104,7 +107,13 @@ fn write_csv(w: &mut dyn Write, stories: &[(String, Vec<LineageEvent>)]) -> std:
     out.write_record(["year", "event", "code", "text", "source"])?;
     for (_, events) in stories {
         for e in events {
-            out.write_record([e.year.to_string().as_str(), &e.event, &e.code, &e.text, &e.source])?;
+            out.write_record([
+                e.year.to_string().as_str(),
+                &e.event,
+                &e.code,
+                &e.text,
+                &e.source,
+            ])?;
         }
     }
     out.flush()

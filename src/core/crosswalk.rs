@@ -79,12 +79,14 @@ impl Crosswalk {
     /// uncovered row last), so output bytes are stable.
     pub fn sort(&mut self) {
         self.rows.sort_by(|a, b| {
-            a.from_code.cmp(&b.from_code).then_with(|| match (&a.to_code, &b.to_code) {
-                (Some(x), Some(y)) => x.cmp(y),
-                (Some(_), None) => std::cmp::Ordering::Less,
-                (None, Some(_)) => std::cmp::Ordering::Greater,
-                (None, None) => std::cmp::Ordering::Equal,
-            })
+            a.from_code
+                .cmp(&b.from_code)
+                .then_with(|| match (&a.to_code, &b.to_code) {
+                    (Some(x), Some(y)) => x.cmp(y),
+                    (Some(_), None) => std::cmp::Ordering::Less,
+                    (None, Some(_)) => std::cmp::Ordering::Greater,
+                    (None, None) => std::cmp::Ordering::Equal,
+                })
         });
     }
 }

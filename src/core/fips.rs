@@ -30,7 +30,10 @@ fn digits_of(text: &str) -> Result<String, FipsError> {
     let t = text.trim();
     let t = t.strip_suffix(".0").unwrap_or(t);
     let t = t.trim_end_matches(".00").trim_end_matches(".0");
-    let digits: String = t.chars().filter(|c| !matches!(c, ' ' | '-' | '_' | '\u{a0}')).collect();
+    let digits: String = t
+        .chars()
+        .filter(|c| !matches!(c, ' ' | '-' | '_' | '\u{a0}'))
+        .collect();
     if digits.is_empty() || !digits.bytes().all(|b| b.is_ascii_digit()) {
         return Err(FipsError::NotNumeric(text.to_string()));
     }
@@ -61,7 +64,9 @@ impl FromStr for StateFips {
         if d.len() > 2 {
             return Err(FipsError::WrongLength(s.to_string()));
         }
-        let n: u8 = d.parse().map_err(|_| FipsError::NotNumeric(s.to_string()))?;
+        let n: u8 = d
+            .parse()
+            .map_err(|_| FipsError::NotNumeric(s.to_string()))?;
         StateFips::new(n).ok_or_else(|| FipsError::ZeroState(s.to_string()))
     }
 }
@@ -80,7 +85,9 @@ pub struct CountyFips(u32);
 impl CountyFips {
     /// Builds from a state and a county part 1..=999.
     pub fn new(state: StateFips, county: u16) -> Option<Self> {
-        (1..=999).contains(&county).then(|| CountyFips(state.0 as u32 * 1000 + county as u32))
+        (1..=999)
+            .contains(&county)
+            .then(|| CountyFips(state.0 as u32 * 1000 + county as u32))
     }
 
     /// Builds from the five-digit number (e.g. 6037 for 06037).
@@ -113,11 +120,13 @@ impl FromStr for CountyFips {
         if !(4..=5).contains(&d.len()) {
             return Err(FipsError::WrongLength(s.to_string()));
         }
-        let n: u32 = d.parse().map_err(|_| FipsError::NotNumeric(s.to_string()))?;
+        let n: u32 = d
+            .parse()
+            .map_err(|_| FipsError::NotNumeric(s.to_string()))?;
         if n / 1000 == 0 {
             return Err(FipsError::ZeroState(s.to_string()));
         }
-        if n % 1000 == 0 {
+        if n.is_multiple_of(1000) {
             return Err(FipsError::StateLevel(s.to_string()));
         }
         CountyFips::from_number(n).ok_or_else(|| FipsError::WrongLength(s.to_string()))
@@ -153,11 +162,26 @@ mod tests {
 
     #[test]
     fn state_level_and_malformed_codes_are_rejected() {
-        assert_eq!("06000".parse::<CountyFips>(), Err(FipsError::StateLevel("06000".into())));
-        assert!(matches!("ABCDE".parse::<CountyFips>(), Err(FipsError::NotNumeric(_))));
-        assert!(matches!("123".parse::<CountyFips>(), Err(FipsError::WrongLength(_))));
-        assert!(matches!("00123".parse::<CountyFips>(), Err(FipsError::ZeroState(_))));
-        assert!(matches!("0".parse::<StateFips>(), Err(FipsError::ZeroState(_))));
+        assert_eq!(
+            "06000".parse::<CountyFips>(),
+            Err(FipsError::StateLevel("06000".into()))
+        );
+        assert!(matches!(
+            "ABCDE".parse::<CountyFips>(),
+            Err(FipsError::NotNumeric(_))
+        ));
+        assert!(matches!(
+            "123".parse::<CountyFips>(),
+            Err(FipsError::WrongLength(_))
+        ));
+        assert!(matches!(
+            "00123".parse::<CountyFips>(),
+            Err(FipsError::ZeroState(_))
+        ));
+        assert!(matches!(
+            "0".parse::<StateFips>(),
+            Err(FipsError::ZeroState(_))
+        ));
     }
 
     #[test]

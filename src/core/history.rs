@@ -41,7 +41,10 @@ pub enum Carried {
 }
 
 fn ceases(kind: ChangeKind) -> bool {
-    matches!(kind, ChangeKind::Renamed | ChangeKind::Absorbed | ChangeKind::Split | ChangeKind::Reorganized)
+    matches!(
+        kind,
+        ChangeKind::Renamed | ChangeKind::Absorbed | ChangeKind::Split | ChangeKind::Reorganized
+    )
 }
 
 /// Carries `code` to the vintage `year` of `reference`.
@@ -50,7 +53,9 @@ pub fn carry(reference: &Reference, code: &str, year: u16) -> Carried {
         return Carried::Same;
     }
     let eras = reference.eras(code);
-    let Some(first) = eras.first() else { return Carried::Unknown };
+    let Some(first) = eras.first() else {
+        return Carried::Unknown;
+    };
     if first.valid.from > year {
         backward(reference, code, year)
     } else {
@@ -133,7 +138,12 @@ fn backward(reference: &Reference, code: &str, year: u16) -> Carried {
     finish(done, steps, divided, false)
 }
 
-fn finish(done: BTreeSet<String>, mut steps: Vec<&Change>, divided: bool, forward: bool) -> Carried {
+fn finish(
+    done: BTreeSet<String>,
+    mut steps: Vec<&Change>,
+    divided: bool,
+    forward: bool,
+) -> Carried {
     if done.is_empty() {
         return Carried::Unknown;
     }
@@ -148,7 +158,10 @@ fn finish(done: BTreeSet<String>, mut steps: Vec<&Change>, divided: bool, forwar
         .join("; ");
     let successors: Vec<String> = done.into_iter().collect();
     if successors.len() == 1 && !divided {
-        Carried::To { code: successors.into_iter().next().unwrap_or_default(), note }
+        Carried::To {
+            code: successors.into_iter().next().unwrap_or_default(),
+            note,
+        }
     } else {
         Carried::Divided { successors, note }
     }
@@ -197,8 +210,19 @@ pub fn lineage(reference: &Reference, code: &str) -> Vec<LineageEvent> {
             event: "era".into(),
             code: u.code.clone(),
             text: match u.valid.to {
-                Some(to) => format!("{} ({}) from {} to {}", u.full_name(), u.code, u.valid.from, to),
-                None => format!("{} ({}) from {} to today", u.full_name(), u.code, u.valid.from),
+                Some(to) => format!(
+                    "{} ({}) from {} to {}",
+                    u.full_name(),
+                    u.code,
+                    u.valid.from,
+                    to
+                ),
+                None => format!(
+                    "{} ({}) from {} to today",
+                    u.full_name(),
+                    u.code,
+                    u.valid.from
+                ),
             },
             source: String::new(),
         })
@@ -206,7 +230,10 @@ pub fn lineage(reference: &Reference, code: &str) -> Vec<LineageEvent> {
     for c in reference.changes_of(code) {
         let text = match c.kind {
             ChangeKind::Renamed if c.from_code == c.to_code => {
-                format!("{}: {} renamed {} (same code {})", c.year, c.from_name, c.to_name, c.to_code)
+                format!(
+                    "{}: {} renamed {} (same code {})",
+                    c.year, c.from_name, c.to_name, c.to_code
+                )
             }
             ChangeKind::Renamed => format!(
                 "{}: {} ({}) renamed {} ({})",
@@ -233,7 +260,11 @@ pub fn lineage(reference: &Reference, code: &str) -> Vec<LineageEvent> {
                 c.year, c.from_name, c.from_code, c.to_name, c.to_code
             ),
         };
-        let text = if c.note.is_empty() { text } else { format!("{text}. {}", c.note) };
+        let text = if c.note.is_empty() {
+            text
+        } else {
+            format!("{text}. {}", c.note)
+        };
         out.push(LineageEvent {
             year: c.year,
             event: c.kind.as_str().into(),
@@ -242,6 +273,8 @@ pub fn lineage(reference: &Reference, code: &str) -> Vec<LineageEvent> {
             source: c.source.clone(),
         });
     }
-    out.sort_by(|a, b| (a.year, a.event != "era", &a.text).cmp(&(b.year, b.event != "era", &b.text)));
+    out.sort_by(|a, b| {
+        (a.year, a.event != "era", &a.text).cmp(&(b.year, b.event != "era", &b.text))
+    });
     out
 }

@@ -168,7 +168,11 @@ pub struct Reference {
 impl Reference {
     /// The latest vintage year any unit mentions (the default vintage).
     pub fn latest_year(&self) -> Option<u16> {
-        self.units.iter().flat_map(|u| [Some(u.valid.from), u.valid.to]).flatten().max()
+        self.units
+            .iter()
+            .flat_map(|u| [Some(u.valid.from), u.valid.to])
+            .flatten()
+            .max()
     }
 
     /// Units valid in `year`.
@@ -178,7 +182,9 @@ impl Reference {
 
     /// The unit with `code` valid in `year`, if any.
     pub fn unit(&self, code: &str, year: u16) -> Option<&Unit> {
-        self.units.iter().find(|u| u.code == code && u.valid.contains(year))
+        self.units
+            .iter()
+            .find(|u| u.code == code && u.valid.contains(year))
     }
 
     /// Every era of a code, oldest first.
@@ -195,9 +201,14 @@ impl Reference {
 
     /// Changes that involve `code` on either side, in year order.
     pub fn changes_of(&self, code: &str) -> Vec<&Change> {
-        let mut v: Vec<&Change> =
-            self.changes.iter().filter(|c| c.from_code == code || c.to_code == code).collect();
-        v.sort_by(|a, b| (a.year, &a.from_code, &a.to_code).cmp(&(b.year, &b.from_code, &b.to_code)));
+        let mut v: Vec<&Change> = self
+            .changes
+            .iter()
+            .filter(|c| c.from_code == code || c.to_code == code)
+            .collect();
+        v.sort_by(|a, b| {
+            (a.year, &a.from_code, &a.to_code).cmp(&(b.year, &b.from_code, &b.to_code))
+        });
         v
     }
 }
@@ -208,11 +219,17 @@ mod tests {
 
     #[test]
     fn an_open_span_contains_every_later_year() {
-        let s = YearSpan { from: 2015, to: None };
+        let s = YearSpan {
+            from: 2015,
+            to: None,
+        };
         assert!(!s.contains(2014));
         assert!(s.contains(2015));
         assert!(s.contains(2100));
-        let closed = YearSpan { from: 1970, to: Some(2014) };
+        let closed = YearSpan {
+            from: 1970,
+            to: Some(2014),
+        };
         assert!(closed.contains(2014));
         assert!(!closed.contains(2015));
     }

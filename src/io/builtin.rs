@@ -61,7 +61,10 @@ fn parse<T: for<'de> Deserialize<'de>>(label: &str, text: &str) -> Result<Vec<T>
     for row in reader.deserialize() {
         let row: T = row.map_err(|e| {
             let line = e.position().map_or(0, |p| p.line());
-            Error::input(Location::file(label).at_line(line), format!("built-in table is malformed: {e}"))
+            Error::input(
+                Location::file(label).at_line(line),
+                format!("built-in table is malformed: {e}"),
+            )
         })?;
         out.push(row);
     }
@@ -95,7 +98,12 @@ fn changes() -> Result<Vec<Change>> {
         .enumerate()
         .map(|(i, r)| {
             let kind = r.kind.parse().map_err(|m: String| {
-                Error::input(Location::file(label).at_line(i as u64 + 2).in_column("kind"), m)
+                Error::input(
+                    Location::file(label)
+                        .at_line(i as u64 + 2)
+                        .in_column("kind"),
+                    m,
+                )
             })?;
             Ok(Change {
                 year: r.year,
@@ -126,10 +134,20 @@ fn build_states() -> Result<Reference> {
     let mut aliases = Vec::new();
     for p in &parents {
         for a in p.short.iter().chain(&p.abbreviations) {
-            aliases.push(Alias { code: p.code.clone(), alias: a.clone(), note: "state abbreviation".into() });
+            aliases.push(Alias {
+                code: p.code.clone(),
+                alias: a.clone(),
+                note: "state abbreviation".into(),
+            });
         }
     }
-    Ok(Reference { label: "builtin:us-states".into(), parents: Vec::new(), units, changes: Vec::new(), aliases })
+    Ok(Reference {
+        label: "builtin:us-states".into(),
+        parents: Vec::new(),
+        units,
+        changes: Vec::new(),
+        aliases,
+    })
 }
 
 fn build_counties() -> Result<Reference> {
@@ -141,12 +159,19 @@ fn build_counties() -> Result<Reference> {
             code: r.code,
             name: r.name,
             description: r.description,
-            valid: YearSpan { from: r.valid_from, to: r.valid_to },
+            valid: YearSpan {
+                from: r.valid_from,
+                to: r.valid_to,
+            },
         })
         .collect();
     let aliases = parse::<AliasRow>("builtin:reference/us/county-aliases.csv", ALIASES_CSV)?
         .into_iter()
-        .map(|r| Alias { code: r.code, alias: r.alias, note: r.note })
+        .map(|r| Alias {
+            code: r.code,
+            alias: r.alias,
+            note: r.note,
+        })
         .collect();
     Ok(Reference {
         label: "builtin:us-counties".into(),
@@ -194,9 +219,9 @@ pub fn read_reference_file(path: &Path) -> Result<Reference> {
         if text.is_empty() {
             return Ok(None);
         }
-        text.parse::<u16>().map(Some).map_err(|_| {
-            Error::input(table.location(row, c), format!("{text:?} is not a year"))
-        })
+        text.parse::<u16>()
+            .map(Some)
+            .map_err(|_| Error::input(table.location(row, c), format!("{text:?} is not a year")))
     };
     let mut units = Vec::with_capacity(table.len());
     for (i, r) in table.records.iter().enumerate() {
@@ -208,8 +233,13 @@ pub fn read_reference_file(path: &Path) -> Result<Reference> {
             code: c.to_string(),
             name: r[name].trim().to_string(),
             description: description.map_or(String::new(), |d| r[d].trim().to_string()),
-            parent: parent.map(|p| r[p].trim().to_string()).filter(|p| !p.is_empty()),
-            valid: YearSpan { from: year(i, from)?.unwrap_or(0), to: year(i, to)? },
+            parent: parent
+                .map(|p| r[p].trim().to_string())
+                .filter(|p| !p.is_empty()),
+            valid: YearSpan {
+                from: year(i, from)?.unwrap_or(0),
+                to: year(i, to)?,
+            },
         });
     }
     Ok(Reference {

@@ -36,20 +36,27 @@ pub fn write_csv(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()
 /// is not a number, an unknown basis) are errors naming line and column.
 pub fn read_csv(path: &Path) -> Result<Crosswalk> {
     let table = read_table(path, ReadOptions::default())?;
-    let cols: Vec<usize> = COLUMNS[..3].iter().map(|c| table.column(c)).collect::<Result<_>>()?;
+    let cols: Vec<usize> = COLUMNS[..3]
+        .iter()
+        .map(|c| table.column(c))
+        .collect::<Result<_>>()?;
     let share = table.column("target_share").ok();
     let basis = table.column("basis").ok();
     let mut rows = Vec::with_capacity(table.len());
     for (i, r) in table.records.iter().enumerate() {
         let number = |c: usize| -> Result<f64> {
             let t = r[c].trim();
-            t.parse::<f64>().ok().filter(|v| v.is_finite()).ok_or_else(|| {
-                Error::input(table.location(i, c), format!("{t:?} is not a number"))
-            })
+            t.parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite())
+                .ok_or_else(|| Error::input(table.location(i, c), format!("{t:?} is not a number")))
         };
         let from = r[cols[0]].trim();
         if from.is_empty() {
-            return Err(Error::input(table.location(i, cols[0]), "empty source code"));
+            return Err(Error::input(
+                table.location(i, cols[0]),
+                "empty source code",
+            ));
         }
         let to = r[cols[1]].trim();
         rows.push(CrosswalkRow {
@@ -61,15 +68,19 @@ pub fn read_csv(path: &Path) -> Result<Crosswalk> {
                 _ => None,
             },
             basis: match basis {
-                Some(c) if !r[c].trim().is_empty() => r[c].trim().parse().map_err(|m: String| {
-                    Error::input(table.location(i, c), m)
-                })?,
+                Some(c) if !r[c].trim().is_empty() => r[c]
+                    .trim()
+                    .parse()
+                    .map_err(|m: String| Error::input(table.location(i, c), m))?,
                 _ => crate::core::crosswalk::Basis::Area,
             },
         });
     }
     if rows.is_empty() {
-        return Err(Error::input(Location::file(path), "the crosswalk has no rows"));
+        return Err(Error::input(
+            Location::file(path),
+            "the crosswalk has no rows",
+        ));
     }
     Ok(Crosswalk { rows })
 }

@@ -95,10 +95,15 @@ where
         .map_err(|e| Error::io(path, "cannot create a temporary file beside", e))?;
     {
         let mut w = BufWriter::with_capacity(1 << 16, tmp.as_file());
-        fill(&mut w).and_then(|_| w.flush()).map_err(|e| Error::io(path, "cannot write", e))?;
+        fill(&mut w)
+            .and_then(|_| w.flush())
+            .map_err(|e| Error::io(path, "cannot write", e))?;
     }
-    tmp.as_file().sync_all().map_err(|e| Error::io(path, "cannot write", e))?;
-    tmp.persist(path).map_err(|e| Error::io(path, "cannot move into place", e.error))?;
+    tmp.as_file()
+        .sync_all()
+        .map_err(|e| Error::io(path, "cannot write", e))?;
+    tmp.persist(path)
+        .map_err(|e| Error::io(path, "cannot move into place", e.error))?;
     Ok(())
 }
 

@@ -16,9 +16,9 @@ impl Progress {
             return Progress { bar: None };
         }
         let bar = indicatif::ProgressBar::new(len);
-        if let Ok(style) = indicatif::ProgressStyle::with_template(
-            "{msg:>12} [{bar:30}] {pos}/{len} ({elapsed})",
-        ) {
+        if let Ok(style) =
+            indicatif::ProgressStyle::with_template("{msg:>12} [{bar:30}] {pos}/{len} ({elapsed})")
+        {
             bar.set_style(style.progress_chars("=> "));
         }
         bar.set_message(message.to_string());

@@ -63,7 +63,9 @@ impl Table {
 
     /// Location of record `row` (0-based) in column `column` (an index).
     pub fn location(&self, row: usize, column: usize) -> Location {
-        Location::file(&self.path).at_line(self.lines[row]).in_column(&self.headers[column])
+        Location::file(&self.path)
+            .at_line(self.lines[row])
+            .in_column(&self.headers[column])
     }
 
     /// Number of records.
@@ -86,7 +88,9 @@ pub struct ReadOptions {
 
 /// True when the path names a Parquet file (by extension or magic bytes).
 pub fn is_parquet(path: &Path, head: &[u8]) -> bool {
-    path.extension().is_some_and(|e| e.eq_ignore_ascii_case("parquet")) || head.starts_with(b"PAR1")
+    path.extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+        || head.starts_with(b"PAR1")
 }
 
 /// Reads a whole table from `path` (`-` for standard input).
@@ -119,7 +123,10 @@ pub fn decode(path: &Path, bytes: &[u8]) -> Result<(String, Encoding, Option<Str
     match std::str::from_utf8(body) {
         Ok(s) => Ok((s.to_string(), Encoding::Utf8, None)),
         Err(e) => {
-            let line = 1 + body[..e.valid_up_to()].iter().filter(|&&b| b == b'\n').count();
+            let line = 1 + body[..e.valid_up_to()]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count();
             if body.contains(&0) {
                 return Err(Error::input(
                     Location::file(path).at_line(line as u64),
@@ -139,10 +146,11 @@ pub fn decode(path: &Path, bytes: &[u8]) -> Result<(String, Encoding, Option<Str
 /// Windows-1252 byte to char (Latin-1 with the 0x80..0x9F printable forms).
 fn cp1252(b: u8) -> char {
     const HIGH: [char; 32] = [
-        '\u{20AC}', '\u{81}', '\u{201A}', '\u{0192}', '\u{201E}', '\u{2026}', '\u{2020}', '\u{2021}',
-        '\u{02C6}', '\u{2030}', '\u{0160}', '\u{2039}', '\u{0152}', '\u{8D}', '\u{017D}', '\u{8F}',
-        '\u{90}', '\u{2018}', '\u{2019}', '\u{201C}', '\u{201D}', '\u{2022}', '\u{2013}', '\u{2014}',
-        '\u{02DC}', '\u{2122}', '\u{0161}', '\u{203A}', '\u{0153}', '\u{9D}', '\u{017E}', '\u{0178}',
+        '\u{20AC}', '\u{81}', '\u{201A}', '\u{0192}', '\u{201E}', '\u{2026}', '\u{2020}',
+        '\u{2021}', '\u{02C6}', '\u{2030}', '\u{0160}', '\u{2039}', '\u{0152}', '\u{8D}',
+        '\u{017D}', '\u{8F}', '\u{90}', '\u{2018}', '\u{2019}', '\u{201C}', '\u{201D}', '\u{2022}',
+        '\u{2013}', '\u{2014}', '\u{02DC}', '\u{2122}', '\u{0161}', '\u{203A}', '\u{0153}',
+        '\u{9D}', '\u{017E}', '\u{0178}',
     ];
     match b {
         0x80..=0x9F => HIGH[(b - 0x80) as usize],
@@ -167,13 +175,20 @@ pub fn detect_delimiter(text: &str) -> u8 {
             }
         }
     }
-    counts.iter().filter(|c| c.1 > 0).max_by_key(|c| c.1).map_or(b',', |c| c.0)
+    counts
+        .iter()
+        .filter(|c| c.1 > 0)
+        .max_by_key(|c| c.1)
+        .map_or(b',', |c| c.0)
 }
 
 fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Table> {
     let (text, encoding, warning) = decode(path, bytes)?;
     if text.trim().is_empty() {
-        return Err(Error::input(Location::file(path), "the file is empty; expected a header line and rows"));
+        return Err(Error::input(
+            Location::file(path),
+            "the file is empty; expected a header line and rows",
+        ));
     }
     let delimiter = options.delimiter.unwrap_or_else(|| detect_delimiter(&text));
     let mut reader = csv::ReaderBuilder::new()
@@ -242,7 +257,9 @@ fn csv_error(path: &Path, e: csv::Error, headers: &[String]) -> Error {
         location = location.at_line(l);
     }
     let message = match e.kind() {
-        csv::ErrorKind::UnequalLengths { expected_len, len, .. } => {
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => {
             let mut m = format!(
                 "ragged row: {len} fields where the header has {expected_len}; check for an unquoted delimiter or a missing field"
             );
@@ -263,10 +280,14 @@ fn csv_error(path: &Path, e: csv::Error, headers: &[String]) -> Error {
 fn read_parquet(path: &Path, bytes: Vec<u8>) -> Result<Table> {
     use polars::prelude::*;
     let cursor = std::io::Cursor::new(bytes);
-    let df = ParquetReader::new(cursor).finish().map_err(|e| {
-        Error::input(Location::file(path), format!("cannot read as Parquet: {e}"))
-    })?;
-    let headers: Vec<String> = df.get_column_names().iter().map(|s| s.to_string()).collect();
+    let df = ParquetReader::new(cursor)
+        .finish()
+        .map_err(|e| Error::input(Location::file(path), format!("cannot read as Parquet: {e}")))?;
+    let headers: Vec<String> = df
+        .get_column_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
     check_headers(path, &headers)?;
     let height = df.height();
     let mut columns: Vec<Vec<String>> = Vec::with_capacity(headers.len());
@@ -281,9 +302,18 @@ fn read_parquet(path: &Path, bytes: Vec<u8>) -> Result<Table> {
                 )
             })?;
         let strings = column.str().map_err(|e| {
-            Error::input(Location::file(path).in_column(name), format!("cannot read the column as text: {e}"))
+            Error::input(
+                Location::file(path).in_column(name),
+                format!("cannot read the column as text: {e}"),
+            )
         })?;
-        columns.push(strings.into_iter().map(|v| v.unwrap_or("").to_string()).collect());
+        columns.push(
+            strings
+                .downcast_iter()
+                .flat_map(|array| array.iter())
+                .map(|v| v.unwrap_or("").to_string())
+                .collect(),
+        );
     }
     let mut records = Vec::with_capacity(height);
     for row in 0..height {
@@ -351,7 +381,10 @@ mod tests {
     #[test]
     fn an_empty_file_is_refused() {
         assert!(read_bytes(b"").unwrap_err().to_string().contains("empty"));
-        assert!(read_bytes(b"\xEF\xBB\xBF \n").unwrap_err().to_string().contains("empty"));
+        assert!(read_bytes(b"\xEF\xBB\xBF \n")
+            .unwrap_err()
+            .to_string()
+            .contains("empty"));
     }
 
     #[test]
