@@ -366,8 +366,14 @@ struct Carrying {
     unweighted: Vec<(String, String)>,
 }
 
-fn absorbed(reference: &Reference, code: &str) -> bool {
-    reference.changes.iter().any(|c| c.from_code == code && c.kind == ChangeKind::Absorbed)
+/// True when every change that carries `code` away is a rename: the unit
+/// is the same land, so it makes up the whole of its new code.
+fn renamed_only(reference: &Reference, code: &str) -> bool {
+    reference
+        .changes
+        .iter()
+        .filter(|c| c.from_code == code && c.to_code != code && c.kind != ChangeKind::PartTransfer && c.kind != ChangeKind::Created)
+        .all(|c| c.kind == ChangeKind::Renamed)
 }
 
 fn carry_codes(
@@ -410,11 +416,21 @@ fn carry_codes(
             }),
             Carried::To { code: to, note } => {
                 out.carried.insert(code.clone());
-                let whole = !absorbed(reference, code);
+                let rows: Vec<CrosswalkRow> = if year == 2023 {
+                    shipped.map(|s| rows_for(s, code).cloned().collect()).unwrap_or_default()
+                } else {
+                    Vec::new()
+                };
+                if !rows.is_empty() {
+                    out.findings.push(finding("carried", format!("carried to {to} ({note}); weights from {shipped_label}")));
+                    out.crosswalk.rows.extend(rows);
+                    continue;
+                }
+                let whole = renamed_only(reference, code);
                 let detail = if whole {
                     format!("carried one to one to {to} ({note})")
                 } else {
-                    format!("carried to {to} ({note}); counts are added to {to}; its share of {to} is unknown, so means weighted by target share leave it out and it does not count in coverage")
+                    format!("carried to {to} ({note}); counts are added to {to}; its share of {to} is unknown, so means weighted by target share leave it out")
                 };
                 out.findings.push(finding("carried", detail));
                 out.crosswalk.rows.push(CrosswalkRow {
