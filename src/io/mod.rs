@@ -3,6 +3,7 @@
 
 pub mod builtin;
 pub mod crosswalk_file;
+pub mod data;
 pub mod geo;
 pub mod output;
 pub mod progress;

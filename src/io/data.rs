@@ -1,0 +1,597 @@
+//! Data tables for `regionkey apply`: reading a large CSV, TSV or Parquet
+//! table with polars (only the columns asked for; codes and periods as
+//! text, values as numbers), folding its rows onto the sources of a
+//! [`Plan`], and writing the results, the report and the sidecar metadata.
+//!
+//! Line numbers in messages are the record number plus one (the header is
+//! line 1); they match the file's lines unless a quoted field holds a line
+//! break.
+
+use std::collections::HashMap;
+use std::hash::{BuildHasherDefault, Hasher};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use polars::prelude::*;
+use rayon::prelude::*;
+
+use crate::core::allocate::{Allocation, Plan, SourceValues};
+use crate::error::{Error, Location, Result};
+use crate::io::output::fixed;
+use crate::io::table::{detect_delimiter, is_parquet};
+
+/// Which columns to read and how.
+#[derive(Debug, Clone)]
+pub struct DataSpec {
+    /// The file.
+    pub path: PathBuf,
+    /// Field separator; detected from the header line when `None`.
+    pub separator: Option<u8>,
+    /// The unit code column (or the county part, with `state_column`).
+    pub code_column: String,
+    /// A state code column to be joined with the county part, if any.
+    pub state_column: Option<String>,
+    /// The period column, if any.
+    pub period_column: Option<String>,
+    /// Numeric columns, each read once.
+    pub value_columns: Vec<String>,
+    /// Texts that mean "no value" besides an empty field.
+    pub missing: Vec<String>,
+}
+
+/// Column names of a data file, read without reading the rows.
+pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
+    let path = &spec.path;
+    let mut head = [0u8; 4];
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
+    if is_parquet(path, &head[..n]) {
+        let mut reader = ParquetReader::new(file);
+        let schema = reader
+            .schema()
+            .map_err(|e| Error::input(Location::file(path), format!("cannot read as Parquet: {e}")))?;
+        return Ok(schema.iter_names().map(|n| n.to_string()).collect());
+    }
+    let line = first_line(path)?;
+    let sep = spec.separator.unwrap_or_else(|| detect_delimiter(&line));
+    Ok(split_header(&line, sep))
+}
+
+fn first_line(path: &Path) -> Result<String> {
+    use std::io::BufRead;
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let mut line = String::new();
+    std::io::BufReader::new(file).read_line(&mut line).map_err(|e| Error::io(path, "cannot read", e))?;
+    let line = line.strip_prefix('\u{feff}').unwrap_or(&line).trim_end_matches(['\r', '\n']).to_string();
+    if line.trim().is_empty() {
+        return Err(Error::input(Location::file(path), "the file is empty; expected a header line and rows"));
+    }
+    Ok(line)
+}
+
+fn split_header(line: &str, sep: u8) -> Vec<String> {
+    let mut reader = csv::ReaderBuilder::new().delimiter(sep).has_headers(false).from_reader(line.as_bytes());
+    reader
+        .records()
+        .next()
+        .and_then(|r| r.ok())
+        .map(|r| r.iter().map(|f| f.trim().to_string()).collect())
+        .unwrap_or_default()
+}
+
+/// Checks that every column `spec` names is present, before reading rows.
+pub fn check_columns(spec: &DataSpec) -> Result<()> {
+    let names = column_names(spec)?;
+    let wanted = [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
+        .into_iter()
+        .flatten()
+        .chain(&spec.value_columns);
+    for w in wanted {
+        if !names.iter().any(|n| n == w) {
+            return Err(Error::MissingColumn {
+                path: spec.path.clone(),
+                column: w.clone(),
+                available: names.join(", "),
+            });
+        }
+    }
+    Ok(())
+}
+
+/// A data table held as columns.
+pub struct DataTable {
+    /// The file.
+    pub path: PathBuf,
+    /// Number of rows.
+    pub rows: usize,
+    codes: StringChunked,
+    states: Option<StringChunked>,
+    periods: Option<StringChunked>,
+    values: Vec<Float64Chunked>,
+    /// The value columns, in the order of [`DataSpec::value_columns`].
+    pub value_columns: Vec<String>,
+}
+
+fn polars_error(path: &Path, e: PolarsError) -> Error {
+    Error::input(Location::file(path), format!("cannot read the table: {e}"))
+}
+
+/// Reads the columns `spec` names. A value that is not a number is an
+/// error naming its line and column.
+pub fn read(spec: &DataSpec) -> Result<DataTable> {
+    let path = &spec.path;
+    let mut head = [0u8; 4];
+    let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
+    let text_columns: Vec<&String> =
+        [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
+            .into_iter()
+            .flatten()
+            .collect();
+    let df = if is_parquet(path, &head[..n]) {
+        let all: Vec<String> = text_columns.iter().map(|s| s.to_string()).chain(spec.value_columns.clone()).collect();
+        let df = ParquetReader::new(file)
+            .with_columns(Some(all))
+            .finish()
+            .map_err(|e| polars_error(path, e))?;
+        let mut columns = Vec::new();
+        for name in &text_columns {
+            let c = df.column(name).map_err(|e| polars_error(path, e))?;
+            columns.push(c.cast(&DataType::String).map_err(|e| polars_error(path, e))?);
+        }
+        for name in &spec.value_columns {
+            let c = df.column(name).map_err(|e| polars_error(path, e))?;
+            columns.push(to_numbers(path, name, c)?);
+        }
+        DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+    } else {
+        let sep = spec.separator.unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
+        match read_csv(spec, sep, &DataType::Float64) {
+            Ok(df) => df,
+            // A value polars cannot read as a number: read the values as
+            // text to find where, and say so.
+            Err(fast) => {
+                let df = read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
+                let mut columns: Vec<Column> =
+                    text_columns.iter().map(|n| df.column(n).cloned()).collect::<PolarsResult<_>>().map_err(|e| polars_error(path, e))?;
+                for name in &spec.value_columns {
+                    let c = df.column(name).map_err(|e| polars_error(path, e))?;
+                    columns.push(to_numbers(path, name, c)?);
+                }
+                let _ = fast;
+                DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+            }
+        }
+    };
+    let text = |name: &String| -> Result<StringChunked> {
+        let c = df.column(name).map_err(|e| polars_error(path, e))?;
+        Ok(c.str().map_err(|e| polars_error(path, e))?.rechunk().into_owned())
+    };
+    let mut values = Vec::new();
+    for name in &spec.value_columns {
+        let c = df.column(name).map_err(|e| polars_error(path, e))?;
+        let ca = c.f64().map_err(|e| polars_error(path, e))?.rechunk().into_owned();
+        // Infinite or NaN values (written "inf", "NaN") are not data.
+        if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
+            return Err(Error::input(
+                Location::file(path).at_line(i as u64 + 2).in_column(name),
+                "the value is not a finite number; leave the field empty if it is missing",
+            ));
+        }
+        values.push(ca);
+    }
+    Ok(DataTable {
+        path: path.clone(),
+        rows: df.height(),
+        codes: text(&spec.code_column)?,
+        states: spec.state_column.as_ref().map(text).transpose()?,
+        periods: spec.period_column.as_ref().map(text).transpose()?,
+        values,
+        value_columns: spec.value_columns.clone(),
+    })
+}
+
+fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<DataFrame> {
+    let mut fields: Vec<Field> = Vec::new();
+    let mut names: Vec<PlSmallStr> = Vec::new();
+    for name in [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
+        .into_iter()
+        .flatten()
+    {
+        fields.push(Field::new(name.as_str().into(), DataType::String));
+        names.push(name.as_str().into());
+    }
+    for name in &spec.value_columns {
+        fields.push(Field::new(name.as_str().into(), value_type.clone()));
+        names.push(name.as_str().into());
+    }
+    let missing: Vec<PlSmallStr> = spec.missing.iter().map(|m| m.as_str().into()).collect();
+    let parse = CsvParseOptions::default()
+        .with_separator(sep)
+        .with_encoding(CsvEncoding::LossyUtf8)
+        .with_null_values((!missing.is_empty()).then_some(NullValues::AllColumns(missing)));
+    CsvReadOptions::default()
+        .with_has_header(true)
+        .with_columns(Some(Arc::from(names)))
+        .with_schema_overwrite(Some(Arc::new(Schema::from_iter(fields))))
+        .with_parse_options(parse)
+        .with_rechunk(true)
+        .try_into_reader_with_file_path(Some(spec.path.clone()))?
+        .finish()
+}
+
+/// Casts a column to numbers; the first text that is not a number is an
+/// error naming its line and column. Surrounding spaces are allowed.
+fn to_numbers(path: &Path, name: &str, column: &Column) -> Result<Column> {
+    if column.dtype().is_primitive_numeric() {
+        return column.cast(&DataType::Float64).map_err(|e| polars_error(path, e));
+    }
+    let text = column.cast(&DataType::String).map_err(|e| polars_error(path, e))?;
+    let text = text.str().map_err(|e| polars_error(path, e))?;
+    let mut out: Vec<Option<f64>> = Vec::with_capacity(text.len());
+    for (i, v) in text.iter().enumerate() {
+        let v = v.map(str::trim).filter(|t| !t.is_empty());
+        match v {
+            None => out.push(None),
+            Some(t) => match t.parse::<f64>() {
+                Ok(x) => out.push(Some(x)),
+                Err(_) => {
+                    return Err(Error::input(
+                        Location::file(path).at_line(i as u64 + 2).in_column(name),
+                        format!("{t:?} is not a number; leave the field empty if the value is missing, or name the marker with --missing"),
+                    ))
+                }
+            },
+        }
+    }
+    Ok(Float64Chunked::from_iter_options(name.into(), out.into_iter()).into_column())
+}
+
+/// FNV-1a, for the many short code strings (faster than the default hasher,
+/// and no input here is adversarial).
+#[derive(Default)]
+struct Fnv(u64);
+
+impl Hasher for Fnv {
+    fn finish(&self) -> u64 {
+        self.0
+    }
+    fn write(&mut self, bytes: &[u8]) {
+        let mut h = if self.0 == 0 { 0xcbf2_9ce4_8422_2325 } else { self.0 };
+        for b in bytes {
+            h ^= *b as u64;
+            h = h.wrapping_mul(0x0100_0000_01b3);
+        }
+        self.0 = h;
+    }
+}
+
+type FastMap<K, V> = HashMap<K, V, BuildHasherDefault<Fnv>>;
+
+/// A raw code as written in the data: state part (with `--state-column`)
+/// and code (or county part).
+#[derive(Debug, Clone, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct RawCode {
+    /// The state column's text, if that column is used.
+    pub state: Option<String>,
+    /// The code column's text.
+    pub code: String,
+}
+
+/// Each row's distinct code and period, numbered.
+pub struct Indexed {
+    /// Distinct raw codes, in order of first appearance.
+    pub codes: Vec<RawCode>,
+    /// Rows and first line of each distinct code.
+    pub code_rows: Vec<(u64, u64)>,
+    /// Distinct periods, sorted (numerically when all are integers); one
+    /// empty period when the table has no period column.
+    pub periods: Vec<String>,
+    row_code: Vec<u32>,
+    row_period: Vec<u32>,
+    /// Rows with no code, and the first one's line.
+    pub missing_code: (u64, u64),
+    /// Rows with no period, and the first one's line.
+    pub missing_period: (u64, u64),
+}
+
+const NONE: u32 = u32::MAX;
+
+impl DataTable {
+    /// Numbers each row's code and period (one pass).
+    pub fn index(&self) -> Indexed {
+        let n = self.rows;
+        let mut code_ids: FastMap<(Option<&str>, &str), u32> = FastMap::default();
+        let mut codes: Vec<RawCode> = Vec::new();
+        let mut code_rows: Vec<(u64, u64)> = Vec::new();
+        let mut row_code = Vec::with_capacity(n);
+        let mut missing_code = (0u64, 0u64);
+        let mut last: Option<((Option<&str>, &str), u32)> = None;
+        let states: Box<dyn Iterator<Item = Option<&str>>> = match &self.states {
+            Some(s) => Box::new(s.iter()),
+            None => Box::new(std::iter::repeat(Some("")).take(n)),
+        };
+        for (i, (code, state)) in self.codes.iter().zip(states).enumerate() {
+            let line = i as u64 + 2;
+            let (Some(code), Some(state)) = (code, state) else {
+                missing_code.0 += 1;
+                if missing_code.1 == 0 {
+                    missing_code.1 = line;
+                }
+                row_code.push(NONE);
+                continue;
+            };
+            let key = (self.states.as_ref().map(|_| state), code);
+            let id = match last {
+                Some((k, id)) if k == key => id,
+                _ => *code_ids.entry(key).or_insert_with(|| {
+                    codes.push(RawCode { state: key.0.map(String::from), code: code.to_string() });
+                    code_rows.push((0, line));
+                    (codes.len() - 1) as u32
+                }),
+            };
+            last = Some((key, id));
+            code_rows[id as usize].0 += 1;
+            row_code.push(id);
+        }
+        let mut period_ids: FastMap<&str, u32> = FastMap::default();
+        let mut periods: Vec<String> = Vec::new();
+        let mut row_period = Vec::with_capacity(n);
+        let mut missing_period = (0u64, 0u64);
+        match &self.periods {
+            None => {
+                periods.push(String::new());
+                row_period.resize(n, 0);
+            }
+            Some(col) => {
+                let mut last: Option<(&str, u32)> = None;
+                for (i, p) in col.iter().enumerate() {
+                    let Some(p) = p.map(str::trim).filter(|p| !p.is_empty()) else {
+                        missing_period.0 += 1;
+                        if missing_period.1 == 0 {
+                            missing_period.1 = i as u64 + 2;
+                        }
+                        row_period.push(NONE);
+                        continue;
+                    };
+                    let id = match last {
+                        Some((k, id)) if k == p => id,
+                        _ => *period_ids.entry(p).or_insert_with(|| {
+                            periods.push(p.to_string());
+                            (periods.len() - 1) as u32
+                        }),
+                    };
+                    last = Some((p, id));
+                    row_period.push(id);
+                }
+                // Sort periods (numerically when all are integers) and renumber.
+                let mut order: Vec<u32> = (0..periods.len() as u32).collect();
+                let numeric: Option<Vec<i64>> = periods.iter().map(|p| p.parse::<i64>().ok()).collect();
+                match &numeric {
+                    Some(nums) => order.sort_by_key(|&i| nums[i as usize]),
+                    None => order.sort_by(|&a, &b| periods[a as usize].cmp(&periods[b as usize])),
+                }
+                let mut rank = vec![0u32; periods.len()];
+                for (r, &i) in order.iter().enumerate() {
+                    rank[i as usize] = r as u32;
+                }
+                for id in row_period.iter_mut().filter(|id| **id != NONE) {
+                    *id = rank[*id as usize];
+                }
+                periods = order.iter().map(|&i| periods[i as usize].clone()).collect();
+            }
+        }
+        Indexed { codes, code_rows, periods, row_code, row_period, missing_code, missing_period }
+    }
+
+    /// Adds each row's values into the cell of its source and period.
+    /// `source_of[code id]` is the plan's source index for that distinct
+    /// code, or `None` (the rows are reported elsewhere).
+    pub fn fold(&self, indexed: &Indexed, source_of: &[Option<u32>], sources: usize) -> Folded {
+        let periods = indexed.periods.len();
+        let columns = self.values.len();
+        let mut values = SourceValues::new(periods, sources, columns);
+        let mut rows = vec![0u32; periods * sources];
+        let mut first = vec![0u32; periods * sources];
+        // Each row's cell, or NONE when its code or period is missing or
+        // its code is not a source of the plan.
+        let mut cells: Vec<u32> = Vec::with_capacity(self.rows);
+        for i in 0..self.rows {
+            let (c, p) = (indexed.row_code[i], indexed.row_period[i]);
+            let source = if c == NONE || p == NONE { None } else { source_of[c as usize] };
+            let Some(s) = source else {
+                cells.push(NONE);
+                continue;
+            };
+            let cell = p as usize * sources + s as usize;
+            rows[cell] += 1;
+            if rows[cell] == 1 {
+                first[cell] = i as u32;
+            }
+            cells.push(cell as u32);
+        }
+        for (col, ca) in self.values.iter().enumerate() {
+            for (v, &cell) in ca.iter().zip(&cells) {
+                if let (Some(v), true) = (v, cell != NONE) {
+                    let cell = cell as usize;
+                    values.add(cell / sources, cell % sources, col, v);
+                }
+            }
+        }
+        Folded { values, rows, first_row: first, sources }
+    }
+}
+
+/// Rows folded onto (period, source) cells.
+pub struct Folded {
+    /// The values.
+    pub values: SourceValues,
+    /// Rows per cell (period-major).
+    pub rows: Vec<u32>,
+    /// Index of each cell's first row.
+    pub first_row: Vec<u32>,
+    sources: usize,
+}
+
+impl Folded {
+    /// Rows of a (period, source) cell, and the first row's line.
+    pub fn cell(&self, period: usize, source: usize) -> (u32, u64) {
+        let i = period * self.sources + source;
+        (self.rows[i], self.first_row[i] as u64 + 2)
+    }
+}
+
+/// How results are written.
+#[derive(Debug, Clone)]
+pub struct ResultLayout {
+    /// Output names, one per measure.
+    pub names: Vec<String>,
+    /// Extra constant columns after a measure's coverage (e.g. a mean's
+    /// `_weighting`), by measure index: (column name, value).
+    pub notes: Vec<Option<(String, String)>>,
+    /// Whether to write a period column.
+    pub with_period: bool,
+    /// Names of target codes (a `code_name` column), if known.
+    pub target_names: Option<Vec<String>>,
+    /// Decimals for values.
+    pub decimals: usize,
+}
+
+/// Decimals for coverage.
+pub const COVERAGE_DECIMALS: usize = 6;
+
+/// Writes the results as CSV, sorted by (code, period). Lines are
+/// formatted in parallel and written in order, so the bytes do not depend
+/// on the number of threads.
+pub fn write_results(
+    w: &mut dyn Write,
+    plan: &Plan,
+    periods: &[String],
+    allocation: &Allocation,
+    layout: &ResultLayout,
+) -> std::io::Result<()> {
+    let mut header = vec!["code".to_string()];
+    if layout.target_names.is_some() {
+        header.push("code_name".into());
+    }
+    if layout.with_period {
+        header.push("period".into());
+    }
+    for (m, name) in layout.names.iter().enumerate() {
+        header.push(name.clone());
+        header.push(format!("{name}_coverage"));
+        if let Some((col, _)) = &layout.notes[m] {
+            header.push(col.clone());
+        }
+    }
+    writeln!(w, "{}", header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","))?;
+    let targets = plan.targets.len();
+    const CHUNK: usize = 64;
+    let chunks: Vec<usize> = (0..targets.div_ceil(CHUNK)).collect();
+    // Write in batches of chunks to bound the memory held at once.
+    for batch in chunks.chunks(64) {
+        let buffers: Vec<Vec<u8>> = batch
+            .par_iter()
+            .map(|&c| {
+                let mut buf = Vec::new();
+                for t in c * CHUNK..((c + 1) * CHUNK).min(targets) {
+                    let code = csv_field(&plan.targets[t]);
+                    let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
+                    for (p, period) in periods.iter().enumerate() {
+                        buf.extend_from_slice(code.as_bytes());
+                        if let Some(n) = &name {
+                            buf.push(b',');
+                            buf.extend_from_slice(n.as_bytes());
+                        }
+                        if layout.with_period {
+                            buf.push(b',');
+                            buf.extend_from_slice(csv_field(period).as_bytes());
+                        }
+                        for (m, e) in allocation.row(t, p).iter().enumerate() {
+                            buf.push(b',');
+                            if let Some(v) = e.value {
+                                push_fixed(&mut buf, v, layout.decimals);
+                            }
+                            buf.push(b',');
+                            push_fixed(&mut buf, e.coverage, COVERAGE_DECIMALS);
+                            if let Some((_, note)) = &layout.notes[m] {
+                                buf.push(b',');
+                                buf.extend_from_slice(csv_field(note).as_bytes());
+                            }
+                        }
+                        buf.push(b'\n');
+                    }
+                }
+                buf
+            })
+            .collect();
+        for b in buffers {
+            w.write_all(&b)?;
+        }
+    }
+    Ok(())
+}
+
+/// Appends `value` with a fixed number of decimals (as [`fixed`] writes it).
+fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
+    let _ = write!(buf, "{value:.decimals$}");
+    // "-0.000" is written as "0.000", as `fixed` does.
+    let Some(tail) = buf.len().checked_sub(decimals + if decimals > 0 { 3 } else { 2 }) else { return };
+    if buf.get(tail) == Some(&b'-') && buf[tail + 1..].iter().all(|&b| b == b'0' || b == b'.') {
+        buf.remove(tail);
+    }
+}
+
+/// Quotes a field if it needs it.
+pub fn csv_field(text: &str) -> std::borrow::Cow<'_, str> {
+    if text.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", text.replace('"', "\"\"")).into()
+    } else {
+        text.into()
+    }
+}
+
+/// Writes `value` as the report writes a number: fixed, or empty.
+pub fn number_or_empty(value: Option<f64>, decimals: usize) -> String {
+    value.map_or(String::new(), |v| fixed(v, decimals))
+}
+
+/// SHA-256 of a file, as lowercase hex.
+pub fn sha256_file(path: &Path) -> Result<String> {
+    use sha2::{Digest, Sha256};
+    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let mut hasher = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = std::io::Read::read(&mut file, &mut buf).map_err(|e| Error::io(path, "cannot read", e))?;
+        if n == 0 {
+            break;
+        }
+        hasher.update(&buf[..n]);
+    }
+    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fixed_decimals_in_a_buffer_match_the_shared_formatter() {
+        for v in [0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5] {
+            for d in [0, 3, 6] {
+                let mut buf = b"x,".to_vec();
+                push_fixed(&mut buf, v, d);
+                assert_eq!(String::from_utf8(buf).unwrap(), format!("x,{}", fixed(v, d)), "{v} {d}");
+            }
+        }
+    }
+
+    #[test]
+    fn fields_with_commas_or_quotes_are_quoted() {
+        assert_eq!(csv_field("a,b"), "\"a,b\"");
+        assert_eq!(csv_field("say \"hi\""), "\"say \"\"hi\"\"\"");
+        assert_eq!(csv_field("plain"), "plain");
+    }
+}

@@ -1,0 +1,338 @@
+//! `regionkey apply` end to end, in a temporary folder. Hand-made tables
+//! carry their arithmetic in comments; the real open dataset is
+//! `fixtures/apply/unemployment.tsv` (vega-datasets 3.2.1, county
+//! unemployment rates from BLS LAUS; see fixtures/apply/README.md).
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+
+fn regionkey() -> Command {
+    Command::cargo_bin("regionkey").unwrap()
+}
+
+fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+/// Reads a CSV into rows of (column -> text).
+fn read_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
+    let mut r = csv::Reader::from_path(path).unwrap();
+    let headers = r.headers().unwrap().clone();
+    r.records()
+        .map(|rec| headers.iter().zip(rec.unwrap().iter()).map(|(h, v)| (h.to_string(), v.to_string())).collect())
+        .collect()
+}
+
+fn find<'a>(rows: &'a [BTreeMap<String, String>], code: &str, period: Option<&str>) -> &'a BTreeMap<String, String> {
+    rows.iter()
+        .find(|r| r["code"] == code && period.is_none_or(|p| r["period"] == p))
+        .unwrap_or_else(|| panic!("no row for {code} {period:?}"))
+}
+
+fn num(row: &BTreeMap<String, String>, col: &str) -> f64 {
+    row[col].parse().unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
+}
+
+/// Sources A, B, C onto X and Y (hand-made):
+/// A: 0.6 in X (75% of X), 0.4 in Y (20% of Y); B wholly in Y (80% of Y);
+/// C wholly in X (25% of X).
+const CROSSWALK: &str = "from_code,to_code,weight,target_share,basis
+A,X,0.6,0.75,area
+A,Y,0.4,0.2,area
+B,Y,1,0.8,area
+C,X,1,0.25,area
+";
+
+#[test]
+fn counts_rates_and_coverage_come_out_as_computed_by_hand() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    // 2020: all known. 2021: C absent, B's unemployed empty.
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "code,year,unemployed,labor_force
+A,2020,10,100
+B,2020,90,300
+C,2020,5,50
+A,2021,20,100
+B,2021,,300
+",
+    );
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--crosswalk", cw.to_str().unwrap()])
+        .args(["--code-column", "code", "--period-column", "year", "--sum", "unemployed,labor_force"])
+        .args(["--ratio", "rate=unemployed/labor_force", "--output", out.to_str().unwrap()])
+        .assert()
+        .success()
+        .stderr(predicate::str::contains("estimates"));
+    let rows = read_rows(&out);
+    assert_eq!(rows.len(), 4, "2 targets x 2 periods");
+    // 2020, X: unemployed 10 * 0.6 + 5 * 1 = 11; labour force 100 * 0.6 + 50 = 110;
+    // rate 11 / 110 = 0.1; coverage 1.
+    let x = find(&rows, "X", Some("2020"));
+    assert_eq!(num(x, "unemployed"), 11.0);
+    assert_eq!(num(x, "labor_force"), 110.0);
+    assert_eq!(num(x, "rate"), 0.1);
+    assert_eq!(num(x, "rate_coverage"), 1.0);
+    // 2020, Y: unemployed 10 * 0.4 + 90 = 94; labour force 40 + 300 = 340; rate 94 / 340.
+    let y = find(&rows, "Y", Some("2020"));
+    assert_eq!(num(y, "unemployed"), 94.0);
+    assert!((num(y, "rate") - 94.0 / 340.0).abs() < 1e-6);
+    // 2021, X: only A known (C absent): unemployed 20 * 0.6 = 12, coverage 0.75.
+    let x = find(&rows, "X", Some("2021"));
+    assert_eq!(num(x, "unemployed"), 12.0);
+    assert_eq!(num(x, "unemployed_coverage"), 0.75);
+    // 2021, Y: unemployed from A only (B empty): 20 * 0.4 = 8, coverage 0.2;
+    // labour force from both: 40 + 300 = 340, coverage 1;
+    // rate only where both are known (A): 8 / 40 = 0.2, coverage 0.2.
+    let y = find(&rows, "Y", Some("2021"));
+    assert_eq!(num(y, "unemployed"), 8.0);
+    assert_eq!(num(y, "unemployed_coverage"), 0.2);
+    assert_eq!(num(y, "labor_force"), 340.0);
+    assert_eq!(num(y, "labor_force_coverage"), 1.0);
+    assert_eq!(num(y, "rate"), 0.2);
+    assert_eq!(num(y, "rate_coverage"), 0.2);
+    // The sidecar names the inputs and carries the caution.
+    let meta: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap()).unwrap();
+    assert_eq!(meta["inputs"][0]["rows"], 5);
+    assert_eq!(meta["inputs"][0]["sha256"].as_str().unwrap().len(), 64);
+    assert!(meta["caution"].as_str().unwrap().contains("estimates"));
+}
+
+#[test]
+fn min_coverage_empties_thin_estimates_but_keeps_their_coverage() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n\nA,100\n");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
+        .args(["--min-coverage", "0.5", "-o", out.to_str().unwrap(), "-q"])
+        .assert()
+        .success();
+    let rows = read_rows(&out);
+    // X: A is 0.75 of X >= 0.5: value 100 * 0.6 = 60. Y: A is 0.2 of Y < 0.5: empty.
+    assert_eq!(num(find(&rows, "X", None), "n"), 60.0);
+    let y = find(&rows, "Y", None);
+    assert_eq!(y["n"], "");
+    assert_eq!(num(y, "n_coverage"), 0.2);
+}
+
+#[test]
+fn unmatched_codes_duplicates_and_absent_sources_are_reported_not_dropped() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    // Line 3 and 4 repeat A; Z is not in the crosswalk (line 5); C is absent.
+    let data = write(dir.path(), "data.csv", "code,n\nA,1\nA,2\nB,4\nZ,8\n");
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
+        .args(["-o", out.to_str().unwrap(), "--report", report.to_str().unwrap()])
+        .assert()
+        .success()
+        .stderr(predicate::str::contains("unmatched-code: 1 (1 rows)"))
+        .stderr(predicate::str::contains("duplicate: 1 (2 rows)"));
+    let items = read_rows(&report);
+    let kinds: Vec<(&str, &str, &str, &str)> = items
+        .iter()
+        .map(|r| (r["kind"].as_str(), r["code"].as_str(), r["rows"].as_str(), r["first_line"].as_str()))
+        .collect();
+    assert_eq!(
+        kinds,
+        [("absent-source", "C", "0", ""), ("duplicate", "A", "2", "2"), ("unmatched-code", "Z", "1", "5")]
+    );
+    // The duplicates were added: A = 3; X = 3 * 0.6 = 1.8.
+    let rows = read_rows(&out);
+    assert_eq!(num(find(&rows, "X", None), "n"), 1.8);
+}
+
+#[test]
+fn a_value_that_is_not_a_number_names_its_line_and_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n\nA,1\nB,lots\n");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n", "-o"])
+        .arg(dir.path().join("out.csv"))
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("line 3"))
+        .stderr(predicate::str::contains("column \"n\""))
+        .stderr(predicate::str::contains("\"lots\""));
+    assert!(!dir.path().join("out.csv").exists());
+}
+
+#[test]
+fn a_missing_column_is_named_with_the_columns_present_before_any_work() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n\nA,1\n");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "people", "-o"])
+        .arg(dir.path().join("out.csv"))
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("no column \"people\""))
+        .stderr(predicate::str::contains("code, n"));
+}
+
+#[test]
+fn options_are_checked_before_reading_the_data() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n,median_income\nA,1,5\n");
+    let out = dir.path().join("out.csv");
+    let run = |extra: &[&str]| {
+        regionkey()
+            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "-o", out.to_str().unwrap()])
+            .args(extra)
+            .assert()
+            .failure()
+    };
+    run(&["--ratio", "rate=n"]).stderr(predicate::str::contains("NAME=NUMERATOR/DENOMINATOR"));
+    run(&["--mean", "median_income"]).stderr(predicate::str::contains("order statistic"));
+    run(&["--sum", "n", "--min-coverage", "2"]).stderr(predicate::str::contains("between 0 and 1"));
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
+        .args(["-o", "/no/such/folder/out.csv"])
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("folder does not exist"));
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--sum", "n", "-o", out.to_str().unwrap()])
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("--crosswalk FILE, or --to-vintage YEAR"));
+}
+
+#[test]
+fn the_same_inputs_give_the_same_bytes() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let mut text = String::from("code,year,n\n");
+    for year in 2000..2040 {
+        for (i, code) in ["A", "B", "C"].iter().enumerate() {
+            text.push_str(&format!("{code},{year},{}\n", (year * 7 + i * 13) % 101));
+        }
+    }
+    let data = write(dir.path(), "data.csv", &text);
+    let mut outputs = Vec::new();
+    for (name, threads) in [("one.csv", "1"), ("two.csv", "2")] {
+        let out = dir.path().join(name);
+        regionkey()
+            .env("RAYON_NUM_THREADS", threads)
+            .env("POLARS_MAX_THREADS", threads)
+            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--period-column", "year"])
+            .args(["--sum", "n", "-q", "-o", out.to_str().unwrap()])
+            .assert()
+            .success();
+        outputs.push(std::fs::read(&out).unwrap());
+    }
+    assert_eq!(outputs[0], outputs[1]);
+    assert!(outputs[0].starts_with(b"code,period,n,n_coverage\nX,2000,"));
+}
+
+/// Runs apply on the unemployment file carried to the 2023 counties and
+/// returns (results, report).
+fn unemployment_to_2023(
+    extra: &[&str],
+) -> (Vec<BTreeMap<String, String>>, Vec<BTreeMap<String, String>>, serde_json::Value) {
+    let dir = tempfile::tempdir().unwrap();
+    let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv");
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    regionkey()
+        .arg("apply")
+        .arg(&fixture)
+        .args(["--code-column", "id", "--to-vintage", "2023", "--mean", "rate"])
+        .args(["-o", out.to_str().unwrap(), "--report", report.to_str().unwrap(), "-q"])
+        .args(extra)
+        .assert()
+        .success();
+    let meta = serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap()).unwrap();
+    (read_rows(&out), read_rows(&report), meta)
+}
+
+#[test]
+fn the_unemployment_file_needs_weights_for_the_units_divided_since() {
+    // Without weights for divided units, the run stops and names them all.
+    let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv");
+    let dir = tempfile::tempdir().unwrap();
+    regionkey()
+        .arg("apply")
+        .arg(&fixture)
+        .args(["--code-column", "id", "--to-vintage", "2018", "--mean", "rate", "-o"])
+        .arg(dir.path().join("out.csv"))
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains("02201"))
+        .stderr(predicate::str::contains("02232"))
+        .stderr(predicate::str::contains("02280"))
+        .stderr(predicate::str::contains("--crosswalk FILE"));
+}
+
+#[test]
+fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
+    let (rows, report, meta) = unemployment_to_2023(&["--skip-unweighted"]);
+    let kind_of = |code: &str| -> Vec<&str> {
+        report.iter().filter(|r| r["code"] == code).map(|r| r["kind"].as_str()).collect()
+    };
+    // Renamed one to one (Census Bureau change list): Wade Hampton -> Kusilvak,
+    // Shannon -> Oglala Lakota; Bedford city absorbed into Bedford County.
+    assert_eq!(kind_of("02270"), ["carried"]);
+    assert_eq!(kind_of("46113"), ["carried"]);
+    assert_eq!(kind_of("51515"), ["carried"]);
+    // The renamed units' rates land unchanged on the new codes.
+    let fixture = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv")).unwrap();
+    let rate_of = |id: &str| -> f64 {
+        fixture.lines().find_map(|l| l.strip_prefix(&format!("{id}\t"))).unwrap().parse().unwrap()
+    };
+    let kusilvak = find(&rows, "02158", None);
+    assert_eq!(kusilvak["code_name"], "Kusilvak Census Area");
+    assert!((num(kusilvak, "rate") - rate_of("2270")).abs() < 1e-9);
+    assert_eq!(num(kusilvak, "rate_coverage"), 1.0);
+    assert!((num(find(&rows, "46102", None), "rate") - rate_of("46113")).abs() < 1e-9);
+    // Bedford County keeps its own rate: the city's share of the county is unknown,
+    // so a target-share mean leaves the city out (and says so in the report).
+    assert!((num(find(&rows, "51019", None), "rate") - rate_of("51019")).abs() < 1e-9);
+    // Divided since the file's vintage, with no weights at hand: reported, rows left out.
+    for code in ["02201", "02232", "02280"] {
+        assert_eq!(kind_of(code), ["divided-without-weights"], "{code}");
+    }
+    // Connecticut's counties and Valdez-Cordova are divided too; whether they
+    // have weights depends on the shipped 2017 -> 2023 crosswalk being present.
+    let shipped = Path::new(env!("CARGO_MANIFEST_DIR")).join("crosswalks/us-counties-2017-2023.csv").exists();
+    // Middlesex (09007) lies wholly in one planning region (09130): carried, not divided.
+    assert_eq!(kind_of("09007"), ["carried"]);
+    for code in ["02261", "09001", "09003", "09005", "09009", "09011", "09013", "09015"] {
+        let expected = if shipped { "divided" } else { "divided-without-weights" };
+        assert_eq!(kind_of(code), [expected], "{code}");
+    }
+    // Every 2023 county is in the output; those no data reaches have coverage 0 and no value.
+    // Kalawao (15005) is absent from the file itself.
+    let kalawao = find(&rows, "15005", None);
+    assert_eq!(kalawao["rate"], "");
+    assert_eq!(num(kalawao, "rate_coverage"), 0.0);
+    // Hoonah-Angoon (02105) and Skagway (02230) came from 02232, which has no weights here.
+    assert_eq!(num(find(&rows, "02105", None), "rate_coverage"), 0.0);
+    assert_eq!(num(find(&rows, "02230", None), "rate_coverage"), 0.0);
+    // An ordinary county is carried as it is.
+    assert!((num(find(&rows, "01001", None), "rate") - rate_of("1001")).abs() < 1e-9);
+    // Every data row is accounted for: allocated, or reported as left out.
+    let left_out: u64 = report
+        .iter()
+        .filter(|r| ["divided-without-weights", "unknown-code", "unreadable-code", "unmatched-code"].contains(&r["kind"].as_str()))
+        .map(|r| r["rows"].parse::<u64>().unwrap())
+        .sum();
+    assert_eq!(meta["counts"]["data_rows"], 3218);
+    assert_eq!(meta["counts"]["rows_allocated"].as_u64().unwrap() + left_out, 3218);
+}
