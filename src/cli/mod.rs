@@ -13,6 +13,7 @@ pub mod chain;
 pub mod demo;
 pub mod history;
 pub mod inspect;
+pub mod map;
 pub mod match_names;
 pub mod overlay;
 
@@ -55,6 +56,8 @@ pub enum Command {
     Chain(chain::Args),
     /// Show a unit's history: names, codes, what it absorbed or split into.
     History(history::Args),
+    /// Draw a map of which units of a layer a table joined to, and how fully.
+    Map(map::Args),
     /// Run the whole pipeline on built-in demo data.
     Demo(demo::Args),
 }
@@ -77,6 +80,7 @@ pub fn main() -> ExitCode {
         Command::Apply(a) => apply::run(a, global),
         Command::Chain(a) => chain::run(a, global),
         Command::History(a) => history::run(a, global),
+        Command::Map(a) => map::run(a, global),
         Command::Demo(a) => demo::run(a, global),
     };
     match result {

@@ -66,17 +66,17 @@ impl Inset {
             // Alaska, shrunk and moved below the Southwest.
             "02" => Inset {
                 projection: Albers::new(55.0, 65.0, 50.0, -154.0),
-                scale: 0.35,
-                dx: -0.30,
-                dy: -0.08,
+                scale: 0.4,
+                dx: -0.17,
+                dy: 0.0,
                 wrap_antimeridian: true,
             },
             // Hawaii, beside Alaska.
             "15" => Inset {
                 projection: Albers::new(8.0, 18.0, 13.0, -157.0),
                 scale: 1.0,
-                dx: -0.14,
-                dy: 0.0,
+                dx: -0.11,
+                dy: -0.065,
                 wrap_antimeridian: false,
             },
             // Puerto Rico and the Virgin Islands, enlarged, off Florida.

@@ -45,12 +45,13 @@ pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
     let path = &spec.path;
     let mut head = [0u8; 4];
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
-    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
+    let n = std::io::Read::read(&mut &file, &mut head)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
     if is_parquet(path, &head[..n]) {
         let mut reader = ParquetReader::new(file);
-        let schema = reader
-            .schema()
-            .map_err(|e| Error::input(Location::file(path), format!("cannot read as Parquet: {e}")))?;
+        let schema = reader.schema().map_err(|e| {
+            Error::input(Location::file(path), format!("cannot read as Parquet: {e}"))
+        })?;
         return Ok(schema.iter_names().map(|n| n.to_string()).collect());
     }
     let line = first_line(path)?;
@@ -62,16 +63,28 @@ fn first_line(path: &Path) -> Result<String> {
     use std::io::BufRead;
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
     let mut line = String::new();
-    std::io::BufReader::new(file).read_line(&mut line).map_err(|e| Error::io(path, "cannot read", e))?;
-    let line = line.strip_prefix('\u{feff}').unwrap_or(&line).trim_end_matches(['\r', '\n']).to_string();
+    std::io::BufReader::new(file)
+        .read_line(&mut line)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
+    let line = line
+        .strip_prefix('\u{feff}')
+        .unwrap_or(&line)
+        .trim_end_matches(['\r', '\n'])
+        .to_string();
     if line.trim().is_empty() {
-        return Err(Error::input(Location::file(path), "the file is empty; expected a header line and rows"));
+        return Err(Error::input(
+            Location::file(path),
+            "the file is empty; expected a header line and rows",
+        ));
     }
     Ok(line)
 }
 
 fn split_header(line: &str, sep: u8) -> Vec<String> {
-    let mut reader = csv::ReaderBuilder::new().delimiter(sep).has_headers(false).from_reader(line.as_bytes());
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(sep)
+        .has_headers(false)
+        .from_reader(line.as_bytes());
     reader
         .records()
         .next()
@@ -83,10 +96,14 @@ fn split_header(line: &str, sep: u8) -> Vec<String> {
 /// Checks that every column `spec` names is present, before reading rows.
 pub fn check_columns(spec: &DataSpec) -> Result<()> {
     let names = column_names(spec)?;
-    let wanted = [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-        .into_iter()
-        .flatten()
-        .chain(&spec.value_columns);
+    let wanted = [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    .chain(&spec.value_columns);
     for w in wanted {
         if !names.iter().any(|n| n == w) {
             return Err(Error::MissingColumn {
@@ -123,14 +140,22 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     let path = &spec.path;
     let mut head = [0u8; 4];
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
-    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
-    let text_columns: Vec<&String> =
-        [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-            .into_iter()
-            .flatten()
-            .collect();
+    let n = std::io::Read::read(&mut &file, &mut head)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
+    let text_columns: Vec<&String> = [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     let df = if is_parquet(path, &head[..n]) {
-        let all: Vec<String> = text_columns.iter().map(|s| s.to_string()).chain(spec.value_columns.clone()).collect();
+        let all: Vec<String> = text_columns
+            .iter()
+            .map(|s| s.to_string())
+            .chain(spec.value_columns.clone())
+            .collect();
         let df = ParquetReader::new(file)
             .with_columns(Some(all))
             .finish()
@@ -138,7 +163,10 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         let mut columns = Vec::new();
         for name in &text_columns {
             let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(c.cast(&DataType::String).map_err(|e| polars_error(path, e))?);
+            columns.push(
+                c.cast(&DataType::String)
+                    .map_err(|e| polars_error(path, e))?,
+            );
         }
         for name in &spec.value_columns {
             let c = df.column(name).map_err(|e| polars_error(path, e))?;
@@ -146,15 +174,21 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         }
         DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
     } else {
-        let sep = spec.separator.unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
+        let sep = spec
+            .separator
+            .unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
         match read_csv(spec, sep, &DataType::Float64) {
             Ok(df) => df,
             // A value polars cannot read as a number: read the values as
             // text to find where, and say so.
             Err(fast) => {
-                let df = read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
-                let mut columns: Vec<Column> =
-                    text_columns.iter().map(|n| df.column(n).cloned()).collect::<PolarsResult<_>>().map_err(|e| polars_error(path, e))?;
+                let df =
+                    read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
+                let mut columns: Vec<Column> = text_columns
+                    .iter()
+                    .map(|n| df.column(n).cloned())
+                    .collect::<PolarsResult<_>>()
+                    .map_err(|e| polars_error(path, e))?;
                 for name in &spec.value_columns {
                     let c = df.column(name).map_err(|e| polars_error(path, e))?;
                     columns.push(to_numbers(path, name, c)?);
@@ -166,12 +200,19 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     };
     let text = |name: &String| -> Result<StringChunked> {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        Ok(c.str().map_err(|e| polars_error(path, e))?.rechunk().into_owned())
+        Ok(c.str()
+            .map_err(|e| polars_error(path, e))?
+            .rechunk()
+            .into_owned())
     };
     let mut values = Vec::new();
     for name in &spec.value_columns {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        let ca = c.f64().map_err(|e| polars_error(path, e))?.rechunk().into_owned();
+        let ca = c
+            .f64()
+            .map_err(|e| polars_error(path, e))?
+            .rechunk()
+            .into_owned();
         // Infinite or NaN values (written "inf", "NaN") are not data.
         if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
             return Err(Error::input(
@@ -195,9 +236,13 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
 fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<DataFrame> {
     let mut fields: Vec<Field> = Vec::new();
     let mut names: Vec<PlSmallStr> = Vec::new();
-    for name in [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-        .into_iter()
-        .flatten()
+    for name in [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
     {
         fields.push(Field::new(name.as_str().into(), DataType::String));
         names.push(name.as_str().into());
@@ -225,9 +270,13 @@ fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<Dat
 /// error naming its line and column. Surrounding spaces are allowed.
 fn to_numbers(path: &Path, name: &str, column: &Column) -> Result<Column> {
     if column.dtype().is_primitive_numeric() {
-        return column.cast(&DataType::Float64).map_err(|e| polars_error(path, e));
+        return column
+            .cast(&DataType::Float64)
+            .map_err(|e| polars_error(path, e));
     }
-    let text = column.cast(&DataType::String).map_err(|e| polars_error(path, e))?;
+    let text = column
+        .cast(&DataType::String)
+        .map_err(|e| polars_error(path, e))?;
     let text = text.str().map_err(|e| polars_error(path, e))?;
     let mut out: Vec<Option<f64>> = Vec::with_capacity(text.len());
     for (i, v) in text.iter().enumerate() {
@@ -258,7 +307,11 @@ impl Hasher for Fnv {
         self.0
     }
     fn write(&mut self, bytes: &[u8]) {
-        let mut h = if self.0 == 0 { 0xcbf2_9ce4_8422_2325 } else { self.0 };
+        let mut h = if self.0 == 0 {
+            0xcbf2_9ce4_8422_2325
+        } else {
+            self.0
+        };
         for b in bytes {
             h ^= *b as u64;
             h = h.wrapping_mul(0x0100_0000_01b3);
@@ -326,7 +379,10 @@ impl DataTable {
             let id = match last {
                 Some((k, id)) if k == key => id,
                 _ => *code_ids.entry(key).or_insert_with(|| {
-                    codes.push(RawCode { state: key.0.map(String::from), code: code.to_string() });
+                    codes.push(RawCode {
+                        state: key.0.map(String::from),
+                        code: code.to_string(),
+                    });
                     code_rows.push((0, line));
                     (codes.len() - 1) as u32
                 }),
@@ -367,7 +423,8 @@ impl DataTable {
                 }
                 // Sort periods (numerically when all are integers) and renumber.
                 let mut order: Vec<u32> = (0..periods.len() as u32).collect();
-                let numeric: Option<Vec<i64>> = periods.iter().map(|p| p.parse::<i64>().ok()).collect();
+                let numeric: Option<Vec<i64>> =
+                    periods.iter().map(|p| p.parse::<i64>().ok()).collect();
                 match &numeric {
                     Some(nums) => order.sort_by_key(|&i| nums[i as usize]),
                     None => order.sort_by(|&a, &b| periods[a as usize].cmp(&periods[b as usize])),
@@ -382,7 +439,15 @@ impl DataTable {
                 periods = order.iter().map(|&i| periods[i as usize].clone()).collect();
             }
         }
-        Indexed { codes, code_rows, periods, row_code, row_period, missing_code, missing_period }
+        Indexed {
+            codes,
+            code_rows,
+            periods,
+            row_code,
+            row_period,
+            missing_code,
+            missing_period,
+        }
     }
 
     /// Adds each row's values into the cell of its source and period.
@@ -399,7 +464,11 @@ impl DataTable {
         let mut cells: Vec<u32> = Vec::with_capacity(self.rows);
         for i in 0..self.rows {
             let (c, p) = (indexed.row_code[i], indexed.row_period[i]);
-            let source = if c == NONE || p == NONE { None } else { source_of[c as usize] };
+            let source = if c == NONE || p == NONE {
+                None
+            } else {
+                source_of[c as usize]
+            };
             let Some(s) = source else {
                 cells.push(NONE);
                 continue;
@@ -419,7 +488,12 @@ impl DataTable {
                 }
             }
         }
-        Folded { values, rows, first_row: first, sources }
+        Folded {
+            values,
+            rows,
+            first_row: first,
+            sources,
+        }
     }
 }
 
@@ -485,7 +559,15 @@ pub fn write_results(
             header.push(col.clone());
         }
     }
-    writeln!(w, "{}", header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","))?;
+    writeln!(
+        w,
+        "{}",
+        header
+            .iter()
+            .map(|h| csv_field(h))
+            .collect::<Vec<_>>()
+            .join(",")
+    )?;
     let targets = plan.targets.len();
     const CHUNK: usize = 64;
     let chunks: Vec<usize> = (0..targets.div_ceil(CHUNK)).collect();
@@ -537,7 +619,12 @@ pub fn write_results(
 fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
     let _ = write!(buf, "{value:.decimals$}");
     // "-0.000" is written as "0.000", as `fixed` does.
-    let Some(tail) = buf.len().checked_sub(decimals + if decimals > 0 { 3 } else { 2 }) else { return };
+    let Some(tail) = buf
+        .len()
+        .checked_sub(decimals + if decimals > 0 { 3 } else { 2 })
+    else {
+        return;
+    };
     if buf.get(tail) == Some(&b'-') && buf[tail + 1..].iter().all(|&b| b == b'0' || b == b'.') {
         buf.remove(tail);
     }
@@ -560,17 +647,23 @@ pub fn number_or_empty(value: Option<f64>, decimals: usize) -> String {
 /// SHA-256 of a file, as lowercase hex.
 pub fn sha256_file(path: &Path) -> Result<String> {
     use sha2::{Digest, Sha256};
-    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let mut file =
+        std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
     loop {
-        let n = std::io::Read::read(&mut file, &mut buf).map_err(|e| Error::io(path, "cannot read", e))?;
+        let n = std::io::Read::read(&mut file, &mut buf)
+            .map_err(|e| Error::io(path, "cannot read", e))?;
         if n == 0 {
             break;
         }
         hasher.update(&buf[..n]);
     }
-    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    Ok(hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect())
 }
 
 #[cfg(test)]
@@ -579,11 +672,17 @@ mod tests {
 
     #[test]
     fn fixed_decimals_in_a_buffer_match_the_shared_formatter() {
-        for v in [0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5] {
+        for v in [
+            0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5,
+        ] {
             for d in [0, 3, 6] {
                 let mut buf = b"x,".to_vec();
                 push_fixed(&mut buf, v, d);
-                assert_eq!(String::from_utf8(buf).unwrap(), format!("x,{}", fixed(v, d)), "{v} {d}");
+                assert_eq!(
+                    String::from_utf8(buf).unwrap(),
+                    format!("x,{}", fixed(v, d)),
+                    "{v} {d}"
+                );
             }
         }
     }
