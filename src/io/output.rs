@@ -144,6 +144,17 @@ mod tests {
         assert_eq!(std::fs::read_to_string(&path).unwrap(), "two");
     }
 
+    #[cfg(unix)]
+    #[test]
+    fn a_new_output_is_readable_by_others_like_any_file() {
+        use std::os::unix::fs::PermissionsExt;
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("out.csv");
+        write_file(&path, |w| w.write_all(b"x")).unwrap();
+        let mode = std::fs::metadata(&path).unwrap().permissions().mode() & 0o777;
+        assert_eq!(mode, 0o644);
+    }
+
     #[test]
     fn negative_zero_is_written_as_zero() {
         assert_eq!(fixed(-0.0, 3), "0.000");
