@@ -468,6 +468,36 @@ fn carry_codes(
             )),
         }
     }
+    // The other pieces of the targets that weighted rows reach: sources of
+    // the weight tables with no row in the data. They join the plan as
+    // carried sources without values, so the coverage of those targets
+    // counts what is missing (a region made mostly of counties absent from
+    // the data is not fully covered).
+    let reached: BTreeSet<String> = out
+        .crosswalk
+        .rows
+        .iter()
+        .filter(|r| r.basis != Basis::History)
+        .filter_map(|r| r.to_code.clone())
+        .collect();
+    let present: BTreeSet<String> = out.crosswalk.rows.iter().map(|r| r.from_code.clone()).collect();
+    let mut extra: Vec<CrosswalkRow> = Vec::new();
+    let mut taken: BTreeSet<String> = BTreeSet::new();
+    for table in [user, if year == 2023 { shipped } else { None }].into_iter().flatten() {
+        let wanted: BTreeSet<&str> = table
+            .rows
+            .iter()
+            .filter(|r| r.to_code.as_ref().is_some_and(|t| reached.contains(t)))
+            .map(|r| r.from_code.as_str())
+            .filter(|c| !present.contains(*c) && !taken.contains(*c))
+            .collect();
+        for code in wanted {
+            out.carried.insert(code.to_string());
+            extra.extend(rows_for(table, code).cloned());
+            taken.insert(code.to_string());
+        }
+    }
+    out.crosswalk.rows.extend(extra);
     out.crosswalk.sort();
     out
 }

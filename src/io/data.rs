@@ -487,15 +487,17 @@ pub fn write_results(
     }
     writeln!(w, "{}", header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","))?;
     let targets = plan.targets.len();
-    const CHUNK: usize = 64;
-    let chunks: Vec<usize> = (0..targets.div_ceil(CHUNK)).collect();
-    // Write in batches of chunks to bound the memory held at once.
-    for batch in chunks.chunks(64) {
+    // A few targets per buffer, a few buffers per batch: bounded memory,
+    // both cores busy.
+    let chunk = (20_000 / periods.len().max(1)).clamp(1, 1024);
+    const CHUNK_PER_BATCH: usize = 32;
+    let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
+    for batch in chunks.chunks(CHUNK_PER_BATCH) {
         let buffers: Vec<Vec<u8>> = batch
             .par_iter()
             .map(|&c| {
                 let mut buf = Vec::new();
-                for t in c * CHUNK..((c + 1) * CHUNK).min(targets) {
+                for t in c * chunk..((c + 1) * chunk).min(targets) {
                     let code = csv_field(&plan.targets[t]);
                     let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
                     for (p, period) in periods.iter().enumerate() {
@@ -533,14 +535,53 @@ pub fn write_results(
     Ok(())
 }
 
-/// Appends `value` with a fixed number of decimals (as [`fixed`] writes it).
+/// Appends `value` with a fixed number of decimals, the same bytes as
+/// [`fixed`] writes. Ordinary values take an integer path (scale, round,
+/// print digits); values near a rounding tie, very large values or many
+/// decimals take the exact formatter.
 fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
-    let _ = write!(buf, "{value:.decimals$}");
-    // "-0.000" is written as "0.000", as `fixed` does.
-    let Some(tail) = buf.len().checked_sub(decimals + if decimals > 0 { 3 } else { 2 }) else { return };
-    if buf.get(tail) == Some(&b'-') && buf[tail + 1..].iter().all(|&b| b == b'0' || b == b'.') {
-        buf.remove(tail);
+    const POW10: [f64; 10] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+    if decimals < POW10.len() {
+        let scaled = value * POW10[decimals];
+        // Below 1e12 the scaled value is within 2^-12 of the exact product,
+        // so unless its fraction is near one half it rounds the same way.
+        if scaled.abs() < 1e12 && (scaled.fract().abs() - 0.5).abs() > 1e-3 {
+            let n = scaled.round() as i64;
+            if n < 0 {
+                buf.push(b'-');
+            }
+            let n = n.unsigned_abs();
+            let unit = POW10[decimals] as u64;
+            push_digits(buf, n / unit);
+            if decimals > 0 {
+                buf.push(b'.');
+                let frac = n % unit;
+                let mut digits = [b'0'; 9];
+                let mut f = frac;
+                for i in (0..decimals).rev() {
+                    digits[i] = b'0' + (f % 10) as u8;
+                    f /= 10;
+                }
+                buf.extend_from_slice(&digits[..decimals]);
+            }
+            return;
+        }
     }
+    buf.extend_from_slice(fixed(value, decimals).as_bytes());
+}
+
+fn push_digits(buf: &mut Vec<u8>, mut n: u64) {
+    let mut tmp = [0u8; 20];
+    let mut i = tmp.len();
+    loop {
+        i -= 1;
+        tmp[i] = b'0' + (n % 10) as u8;
+        n /= 10;
+        if n == 0 {
+            break;
+        }
+    }
+    buf.extend_from_slice(&tmp[i..]);
 }
 
 /// Quotes a field if it needs it.
@@ -579,12 +620,21 @@ mod tests {
 
     #[test]
     fn fixed_decimals_in_a_buffer_match_the_shared_formatter() {
-        for v in [0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5] {
-            for d in [0, 3, 6] {
+        for v in [0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5, 2.5, 0.0000005, -7.0, 0.125, 1e300] {
+            for d in [0, 1, 3, 6, 9, 12] {
                 let mut buf = b"x,".to_vec();
                 push_fixed(&mut buf, v, d);
                 assert_eq!(String::from_utf8(buf).unwrap(), format!("x,{}", fixed(v, d)), "{v} {d}");
             }
+        }
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn the_fast_path_writes_what_the_exact_formatter_writes(v in -1.0e7f64..1.0e7, d in 0usize..10) {
+            let mut buf = Vec::new();
+            push_fixed(&mut buf, v, d);
+            proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), fixed(v, d));
         }
     }
 
