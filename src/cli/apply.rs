@@ -17,7 +17,7 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::{say, warn, Global};
-use crate::core::allocate::{allocate, Allocation, Measure, MeanWeight, Origin, Plan, Spec};
+use crate::core::allocate::{allocate_range, Allocation, Measure, MeanWeight, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::fips::{CountyFips, StateFips};
@@ -716,18 +716,6 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         })
         .collect();
     let spec = Spec { measures, min_coverage: args.min_coverage };
-    let allocation = allocate(&plan, &folded.values, &spec);
-    for &(t, p) in &allocation.overlaps {
-        findings.push(Finding {
-            kind: "overlap",
-            code: plan.targets[t].clone(),
-            period: indexed.periods[p].clone(),
-            rows: 0,
-            first_line: None,
-            detail: "old and new codes of this unit both have values in this period; the same land is counted twice".into(),
-        });
-    }
-    findings.sort();
 
     // Write.
     let layout = ResultLayout {
@@ -746,7 +734,25 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         target_names: extra_names,
         decimals: args.decimals,
     };
-    write_to(&config.output, |w| data::write_results(w, &plan, &indexed.periods, &allocation, &layout))?;
+    let mut coverage = vec![(0u64, 0u64, 0u64, 0u64); spec.measures.len()];
+    let mut overlaps: Vec<(usize, usize)> = Vec::new();
+    let run_allocation = |targets: std::ops::Range<usize>| allocate_range(&plan, &folded.values, &spec, targets);
+    let mut seen = |a: &Allocation| {
+        add_coverage(&mut coverage, a);
+        overlaps.extend(a.overlaps.iter().copied());
+    };
+    write_to(&config.output, |w| data::write_results(w, &plan, &indexed.periods, &run_allocation, &mut seen, &layout))?;
+    for &(t, p) in &overlaps {
+        findings.push(Finding {
+            kind: "overlap",
+            code: plan.targets[t].clone(),
+            period: indexed.periods[p].clone(),
+            rows: 0,
+            first_line: None,
+            detail: "old and new codes of this unit both have values in this period; the same land is counted twice".into(),
+        });
+    }
+    findings.sort();
     if let Some(report) = &config.report {
         write_file(report, |w| write_report(w, &findings))?;
     }
@@ -762,7 +768,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         carried,
         duplicates,
         counts,
-        coverage: coverage_summary(&allocation, plan.targets.len(), indexed.periods.len()),
+        coverage,
     };
     if let Target::File(path) = &config.output {
         let sidecar = sidecar_path(path);
@@ -796,26 +802,22 @@ fn count_findings(findings: &[Finding]) -> BTreeMap<&'static str, (u64, u64)> {
     out
 }
 
-fn coverage_summary(a: &Allocation, targets: usize, periods: usize) -> Vec<(u64, u64, u64, u64)> {
-    (0..a.measures)
-        .map(|m| {
-            let mut c = (0, 0, 0, 0);
-            for t in 0..targets {
-                for p in 0..periods {
-                    let e = a.get(t, p, m);
-                    c.0 += 1;
-                    if e.coverage >= 1.0 - 1e-9 {
-                        c.1 += 1;
-                    } else if e.coverage > 0.0 {
-                        c.2 += 1;
-                    } else {
-                        c.3 += 1;
-                    }
+fn add_coverage(c: &mut [(u64, u64, u64, u64)], a: &Allocation) {
+    for (m, c) in c.iter_mut().enumerate() {
+        for t in a.first_target..a.first_target + a.targets {
+            for p in 0..a.periods {
+                let e = a.get(t, p, m);
+                c.0 += 1;
+                if e.coverage >= 1.0 - 1e-9 {
+                    c.1 += 1;
+                } else if e.coverage > 0.0 {
+                    c.2 += 1;
+                } else {
+                    c.3 += 1;
                 }
             }
-            c
-        })
-        .collect()
+        }
+    }
 }
 
 fn print_summary(global: Global, config: &Config, s: &Summary) {

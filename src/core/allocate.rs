@@ -245,9 +245,14 @@ pub struct Estimate {
     pub coverage: f64,
 }
 
-/// The result: an estimate per (target, period, measure).
+/// The result: an estimate per (target, period, measure), for a range of
+/// targets.
 #[derive(Debug, Clone)]
 pub struct Allocation {
+    /// The first target covered (targets are indices into [`Plan::targets`]).
+    pub first_target: usize,
+    /// Number of targets covered.
+    pub targets: usize,
     /// Number of periods.
     pub periods: usize,
     /// Number of measures.
@@ -263,12 +268,12 @@ pub struct Allocation {
 impl Allocation {
     /// The estimate for a target, period and measure (indices).
     pub fn get(&self, target: usize, period: usize, measure: usize) -> Estimate {
-        self.estimates[(target * self.periods + period) * self.measures + measure]
+        self.estimates[((target - self.first_target) * self.periods + period) * self.measures + measure]
     }
 
     /// The estimates of one target and period, one per measure.
     pub fn row(&self, target: usize, period: usize) -> &[Estimate] {
-        let i = (target * self.periods + period) * self.measures;
+        let i = ((target - self.first_target) * self.periods + period) * self.measures;
         &self.estimates[i..i + self.measures]
     }
 }
@@ -297,9 +302,17 @@ const SHARE_SLACK: f64 = 1e-6;
 /// Allocates `values` through `plan` as `spec` asks. Deterministic: each
 /// target is summed in source order, whatever the number of threads.
 pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
+    allocate_range(plan, values, spec, 0..plan.targets.len())
+}
+
+/// [`allocate`] for a range of targets only (so a large result can be
+/// computed and written a piece at a time).
+pub fn allocate_range(plan: &Plan, values: &SourceValues, spec: &Spec, targets: std::ops::Range<usize>) -> Allocation {
     let periods = values.periods();
     let m = spec.measures.len();
-    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = (0..plan.targets.len())
+    let first_target = targets.start;
+    let count = targets.len();
+    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = targets
         .into_par_iter()
         .map(|t| {
             let links = plan.links_of(t);
@@ -321,13 +334,13 @@ pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
             (out, overlaps)
         })
         .collect();
-    let mut estimates = Vec::with_capacity(plan.targets.len() * periods * m);
+    let mut estimates = Vec::with_capacity(count * periods * m);
     let mut overlaps = Vec::new();
-    for (t, (e, o)) in per_target.into_iter().enumerate() {
+    for (i, (e, o)) in per_target.into_iter().enumerate() {
         estimates.extend(e);
-        overlaps.extend(o.into_iter().map(|p| (t, p)));
+        overlaps.extend(o.into_iter().map(|p| (first_target + i, p)));
     }
-    Allocation { periods, measures: m, estimates, overlaps }
+    Allocation { first_target, targets: count, periods, measures: m, estimates, overlaps }
 }
 
 fn sum_links(links: &[Link], values: &SourceValues, p: usize, measure: Measure) -> Sums {

@@ -17,6 +17,7 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use crate::core::allocate::{Allocation, Plan, SourceValues};
+use std::ops::Range;
 use crate::error::{Error, Location, Result};
 use crate::io::output::fixed;
 use crate::io::table::{detect_delimiter, is_parquet};
@@ -461,14 +462,17 @@ pub struct ResultLayout {
 /// Decimals for coverage.
 pub const COVERAGE_DECIMALS: usize = 6;
 
-/// Writes the results as CSV, sorted by (code, period). Lines are
-/// formatted in parallel and written in order, so the bytes do not depend
-/// on the number of threads.
+/// Writes the results as CSV, sorted by (code, period). Targets are
+/// allocated a batch at a time by `allocate` (each batch is then handed to
+/// `seen`, for summaries), lines formatted in parallel and written in
+/// order, so the bytes do not depend on the number of threads and memory
+/// stays bounded.
 pub fn write_results(
     w: &mut dyn Write,
     plan: &Plan,
     periods: &[String],
-    allocation: &Allocation,
+    allocate: &(dyn Fn(Range<usize>) -> Allocation + Sync),
+    seen: &mut dyn FnMut(&Allocation),
     layout: &ResultLayout,
 ) -> std::io::Result<()> {
     let mut header = vec!["code".to_string()];
@@ -493,6 +497,8 @@ pub fn write_results(
     const CHUNK_PER_BATCH: usize = 32;
     let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
     for batch in chunks.chunks(CHUNK_PER_BATCH) {
+        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else { continue };
+        let allocation = allocate(first * chunk..((last + 1) * chunk).min(targets));
         let buffers: Vec<Vec<u8>> = batch
             .par_iter()
             .map(|&c| {
@@ -531,6 +537,7 @@ pub fn write_results(
         for b in buffers {
             w.write_all(&b)?;
         }
+        seen(&allocation);
     }
     Ok(())
 }
