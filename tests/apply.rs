@@ -19,23 +19,38 @@ fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
     p
 }
 
+/// A CSV row: column -> text.
+type Row = BTreeMap<String, String>;
+
 /// Reads a CSV into rows of (column -> text).
 fn read_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
     let mut r = csv::Reader::from_path(path).unwrap();
     let headers = r.headers().unwrap().clone();
     r.records()
-        .map(|rec| headers.iter().zip(rec.unwrap().iter()).map(|(h, v)| (h.to_string(), v.to_string())).collect())
+        .map(|rec| {
+            headers
+                .iter()
+                .zip(rec.unwrap().iter())
+                .map(|(h, v)| (h.to_string(), v.to_string()))
+                .collect()
+        })
         .collect()
 }
 
-fn find<'a>(rows: &'a [BTreeMap<String, String>], code: &str, period: Option<&str>) -> &'a BTreeMap<String, String> {
+fn find<'a>(
+    rows: &'a [BTreeMap<String, String>],
+    code: &str,
+    period: Option<&str>,
+) -> &'a BTreeMap<String, String> {
     rows.iter()
         .find(|r| r["code"] == code && period.is_none_or(|p| r["period"] == p))
         .unwrap_or_else(|| panic!("no row for {code} {period:?}"))
 }
 
 fn num(row: &BTreeMap<String, String>, col: &str) -> f64 {
-    row[col].parse().unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
+    row[col]
+        .parse()
+        .unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
 }
 
 /// Sources A, B, C onto X and Y (hand-made):
@@ -66,9 +81,26 @@ B,2021,,300
     );
     let out = dir.path().join("out.csv");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "--crosswalk", cw.to_str().unwrap()])
-        .args(["--code-column", "code", "--period-column", "year", "--sum", "unemployed,labor_force"])
-        .args(["--ratio", "rate=unemployed/labor_force", "--output", out.to_str().unwrap()])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "--crosswalk",
+            cw.to_str().unwrap(),
+        ])
+        .args([
+            "--code-column",
+            "code",
+            "--period-column",
+            "year",
+            "--sum",
+            "unemployed,labor_force",
+        ])
+        .args([
+            "--ratio",
+            "rate=unemployed/labor_force",
+            "--output",
+            out.to_str().unwrap(),
+        ])
         .assert()
         .success()
         .stderr(predicate::str::contains("estimates"));
@@ -101,7 +133,8 @@ B,2021,,300
     assert_eq!(num(y, "rate_coverage"), 0.2);
     // The sidecar names the inputs and carries the caution.
     let meta: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap()).unwrap();
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap())
+            .unwrap();
     assert_eq!(meta["inputs"][0]["rows"], 5);
     assert_eq!(meta["inputs"][0]["sha256"].as_str().unwrap().len(), 64);
     assert!(meta["caution"].as_str().unwrap().contains("estimates"));
@@ -114,7 +147,14 @@ fn min_coverage_empties_thin_estimates_but_keeps_their_coverage() {
     let data = write(dir.path(), "data.csv", "code,n\nA,100\n");
     let out = dir.path().join("out.csv");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "-c",
+            cw.to_str().unwrap(),
+            "--sum",
+            "n",
+        ])
         .args(["--min-coverage", "0.5", "-o", out.to_str().unwrap(), "-q"])
         .assert()
         .success();
@@ -135,8 +175,20 @@ fn unmatched_codes_duplicates_and_absent_sources_are_reported_not_dropped() {
     let out = dir.path().join("out.csv");
     let report = dir.path().join("report.csv");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
-        .args(["-o", out.to_str().unwrap(), "--report", report.to_str().unwrap()])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "-c",
+            cw.to_str().unwrap(),
+            "--sum",
+            "n",
+        ])
+        .args([
+            "-o",
+            out.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+        ])
         .assert()
         .success()
         .stderr(predicate::str::contains("unmatched-code: 1 (1 rows)"))
@@ -144,11 +196,22 @@ fn unmatched_codes_duplicates_and_absent_sources_are_reported_not_dropped() {
     let items = read_rows(&report);
     let kinds: Vec<(&str, &str, &str, &str)> = items
         .iter()
-        .map(|r| (r["kind"].as_str(), r["code"].as_str(), r["rows"].as_str(), r["first_line"].as_str()))
+        .map(|r| {
+            (
+                r["kind"].as_str(),
+                r["code"].as_str(),
+                r["rows"].as_str(),
+                r["first_line"].as_str(),
+            )
+        })
         .collect();
     assert_eq!(
         kinds,
-        [("absent-source", "C", "0", ""), ("duplicate", "A", "2", "2"), ("unmatched-code", "Z", "1", "5")]
+        [
+            ("absent-source", "C", "0", ""),
+            ("duplicate", "A", "2", "2"),
+            ("unmatched-code", "Z", "1", "5")
+        ]
     );
     // The duplicates were added: A = 3; X = 3 * 0.6 = 1.8.
     let rows = read_rows(&out);
@@ -161,7 +224,15 @@ fn a_value_that_is_not_a_number_names_its_line_and_column() {
     let cw = write(dir.path(), "cw.csv", CROSSWALK);
     let data = write(dir.path(), "data.csv", "code,n\nA,1\nB,lots\n");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n", "-o"])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "-c",
+            cw.to_str().unwrap(),
+            "--sum",
+            "n",
+            "-o",
+        ])
         .arg(dir.path().join("out.csv"))
         .assert()
         .failure()
@@ -177,7 +248,15 @@ fn a_missing_column_is_named_with_the_columns_present_before_any_work() {
     let cw = write(dir.path(), "cw.csv", CROSSWALK);
     let data = write(dir.path(), "data.csv", "code,n\nA,1\n");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "people", "-o"])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "-c",
+            cw.to_str().unwrap(),
+            "--sum",
+            "people",
+            "-o",
+        ])
         .arg(dir.path().join("out.csv"))
         .assert()
         .failure()
@@ -193,7 +272,14 @@ fn options_are_checked_before_reading_the_data() {
     let out = dir.path().join("out.csv");
     let run = |extra: &[&str]| {
         regionkey()
-            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "-o", out.to_str().unwrap()])
+            .args([
+                "apply",
+                data.to_str().unwrap(),
+                "-c",
+                cw.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+            ])
             .args(extra)
             .assert()
             .failure()
@@ -202,16 +288,32 @@ fn options_are_checked_before_reading_the_data() {
     run(&["--mean", "median_income"]).stderr(predicate::str::contains("order statistic"));
     run(&["--sum", "n", "--min-coverage", "2"]).stderr(predicate::str::contains("between 0 and 1"));
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--sum", "n"])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "-c",
+            cw.to_str().unwrap(),
+            "--sum",
+            "n",
+        ])
         .args(["-o", "/no/such/folder/out.csv"])
         .assert()
         .failure()
         .stderr(predicate::str::contains("folder does not exist"));
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "--sum", "n", "-o", out.to_str().unwrap()])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "--sum",
+            "n",
+            "-o",
+            out.to_str().unwrap(),
+        ])
         .assert()
         .failure()
-        .stderr(predicate::str::contains("--crosswalk FILE, or --to-vintage YEAR"));
+        .stderr(predicate::str::contains(
+            "--crosswalk FILE, or --to-vintage YEAR",
+        ));
 }
 
 #[test]
@@ -231,7 +333,14 @@ fn the_same_inputs_give_the_same_bytes() {
         regionkey()
             .env("RAYON_NUM_THREADS", threads)
             .env("POLARS_MAX_THREADS", threads)
-            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap(), "--period-column", "year"])
+            .args([
+                "apply",
+                data.to_str().unwrap(),
+                "-c",
+                cw.to_str().unwrap(),
+                "--period-column",
+                "year",
+            ])
             .args(["--sum", "n", "-q", "-o", out.to_str().unwrap()])
             .assert()
             .success();
@@ -243,9 +352,7 @@ fn the_same_inputs_give_the_same_bytes() {
 
 /// Runs apply on the unemployment file carried to the 2023 counties and
 /// returns (results, report).
-fn unemployment_to_2023(
-    extra: &[&str],
-) -> (Vec<BTreeMap<String, String>>, Vec<BTreeMap<String, String>>, serde_json::Value) {
+fn unemployment_to_2023(extra: &[&str]) -> (Vec<Row>, Vec<Row>, serde_json::Value) {
     let dir = tempfile::tempdir().unwrap();
     let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv");
     let out = dir.path().join("out.csv");
@@ -253,12 +360,27 @@ fn unemployment_to_2023(
     regionkey()
         .arg("apply")
         .arg(&fixture)
-        .args(["--code-column", "id", "--to-vintage", "2023", "--mean", "rate"])
-        .args(["-o", out.to_str().unwrap(), "--report", report.to_str().unwrap(), "-q"])
+        .args([
+            "--code-column",
+            "id",
+            "--to-vintage",
+            "2023",
+            "--mean",
+            "rate",
+        ])
+        .args([
+            "-o",
+            out.to_str().unwrap(),
+            "--report",
+            report.to_str().unwrap(),
+            "-q",
+        ])
         .args(extra)
         .assert()
         .success();
-    let meta = serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap()).unwrap();
+    let meta =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap())
+            .unwrap();
     (read_rows(&out), read_rows(&report), meta)
 }
 
@@ -270,7 +392,15 @@ fn the_unemployment_file_needs_weights_for_the_units_divided_since() {
     regionkey()
         .arg("apply")
         .arg(&fixture)
-        .args(["--code-column", "id", "--to-vintage", "2018", "--mean", "rate", "-o"])
+        .args([
+            "--code-column",
+            "id",
+            "--to-vintage",
+            "2018",
+            "--mean",
+            "rate",
+            "-o",
+        ])
         .arg(dir.path().join("out.csv"))
         .assert()
         .failure()
@@ -284,7 +414,11 @@ fn the_unemployment_file_needs_weights_for_the_units_divided_since() {
 fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
     let (rows, report, meta) = unemployment_to_2023(&["--skip-unweighted"]);
     let kind_of = |code: &str| -> Vec<&str> {
-        report.iter().filter(|r| r["code"] == code).map(|r| r["kind"].as_str()).collect()
+        report
+            .iter()
+            .filter(|r| r["code"] == code)
+            .map(|r| r["kind"].as_str())
+            .collect()
     };
     // Renamed one to one (Census Bureau change list): Wade Hampton -> Kusilvak,
     // Shannon -> Oglala Lakota; Bedford city absorbed into Bedford County.
@@ -292,9 +426,17 @@ fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
     assert_eq!(kind_of("46113"), ["carried"]);
     assert_eq!(kind_of("51515"), ["carried"]);
     // The renamed units' rates land unchanged on the new codes.
-    let fixture = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv")).unwrap();
+    let fixture = std::fs::read_to_string(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv"),
+    )
+    .unwrap();
     let rate_of = |id: &str| -> f64 {
-        fixture.lines().find_map(|l| l.strip_prefix(&format!("{id}\t"))).unwrap().parse().unwrap()
+        fixture
+            .lines()
+            .find_map(|l| l.strip_prefix(&format!("{id}\t")))
+            .unwrap()
+            .parse()
+            .unwrap()
     };
     let kusilvak = find(&rows, "02158", None);
     assert_eq!(kusilvak["code_name"], "Kusilvak Census Area");
@@ -310,11 +452,19 @@ fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
     }
     // Connecticut's counties and Valdez-Cordova are divided too; whether they
     // have weights depends on the shipped 2017 -> 2023 crosswalk being present.
-    let shipped = Path::new(env!("CARGO_MANIFEST_DIR")).join("crosswalks/us-counties-2017-2023.csv").exists();
+    let shipped = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("crosswalks/us-counties-2017-2023.csv")
+        .exists();
     // Middlesex (09007) lies wholly in one planning region (09130): carried, not divided.
     assert_eq!(kind_of("09007"), ["carried"]);
-    for code in ["02261", "09001", "09003", "09005", "09009", "09011", "09013", "09015"] {
-        let expected = if shipped { "divided" } else { "divided-without-weights" };
+    for code in [
+        "02261", "09001", "09003", "09005", "09009", "09011", "09013", "09015",
+    ] {
+        let expected = if shipped {
+            "divided"
+        } else {
+            "divided-without-weights"
+        };
         assert_eq!(kind_of(code), [expected], "{code}");
     }
     // Every 2023 county is in the output; those no data reaches have coverage 0 and no value.
@@ -330,11 +480,22 @@ fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
     // Every data row is accounted for: allocated, or reported as left out.
     let left_out: u64 = report
         .iter()
-        .filter(|r| ["divided-without-weights", "unknown-code", "unreadable-code", "unmatched-code"].contains(&r["kind"].as_str()))
+        .filter(|r| {
+            [
+                "divided-without-weights",
+                "unknown-code",
+                "unreadable-code",
+                "unmatched-code",
+            ]
+            .contains(&r["kind"].as_str())
+        })
         .map(|r| r["rows"].parse::<u64>().unwrap())
         .sum();
     assert_eq!(meta["counts"]["data_rows"], 3218);
-    assert_eq!(meta["counts"]["rows_allocated"].as_u64().unwrap() + left_out, 3218);
+    assert_eq!(
+        meta["counts"]["rows_allocated"].as_u64().unwrap() + left_out,
+        3218
+    );
 }
 
 #[test]
@@ -355,12 +516,31 @@ fn a_table_whose_periods_use_two_vintages_is_harmonized_in_one_call() {
 09009,09170,0.4,1.0,area
 ",
     );
-    let data = write(dir.path(), "data.csv", "year,code,n\n2020,9001,1000\n2022,09120,300\n2022,09140,200\n2022,09190,700\n");
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "year,code,n\n2020,9001,1000\n2022,09120,300\n2022,09140,200\n2022,09190,700\n",
+    );
     let out = dir.path().join("out.csv");
     let report = dir.path().join("report.csv");
     regionkey()
-        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023", "-c", cw.to_str().unwrap()])
-        .args(["--period-column", "year", "--sum", "n", "-q", "-o", out.to_str().unwrap()])
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "--to-vintage",
+            "2023",
+            "-c",
+            cw.to_str().unwrap(),
+        ])
+        .args([
+            "--period-column",
+            "year",
+            "--sum",
+            "n",
+            "-q",
+            "-o",
+            out.to_str().unwrap(),
+        ])
         .args(["--report", report.to_str().unwrap()])
         .assert()
         .success();
@@ -383,6 +563,10 @@ fn a_table_whose_periods_use_two_vintages_is_harmonized_in_one_call() {
     // A county outside Connecticut has no data in either year.
     assert_eq!(num(find(&rows, "01001", Some("2022")), "n_coverage"), 0.0);
     let report = read_rows(&report);
-    assert!(report.iter().any(|r| r["kind"] == "from-crosswalk" && r["code"] == "09001"));
-    assert!(report.iter().any(|r| r["kind"] == "absent-source" && r["code"] == "09009" && r["period"].is_empty()));
+    assert!(report
+        .iter()
+        .any(|r| r["kind"] == "from-crosswalk" && r["code"] == "09001"));
+    assert!(report
+        .iter()
+        .any(|r| r["kind"] == "absent-source" && r["code"] == "09009" && r["period"].is_empty()));
 }

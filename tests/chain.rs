@@ -27,7 +27,14 @@ fn two_crosswalks_compose_into_the_direct_one() {
     )
     .unwrap();
     let out = dir.path().join("xz.csv");
-    regionkey().args(["chain"]).arg(&xm).arg(&mz).arg("-o").arg(&out).assert().success();
+    regionkey()
+        .args(["chain"])
+        .arg(&xm)
+        .arg(&mz)
+        .arg("-o")
+        .arg(&out)
+        .assert()
+        .success();
     let text = std::fs::read_to_string(&out).unwrap();
     assert_eq!(
         text,
@@ -38,7 +45,8 @@ B,Q,0.500000000000,1.000000000000,area
 "
     );
     let meta: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(dir.path().join("xz.csv.json")).unwrap()).unwrap();
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("xz.csv.json")).unwrap())
+            .unwrap();
     assert_eq!(meta["inputs"].as_array().unwrap().len(), 2);
     assert!(meta["caution"].as_str().unwrap().contains("estimates"));
 }

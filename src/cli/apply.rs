@@ -17,7 +17,7 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::{say, warn, Global};
-use crate::core::allocate::{allocate_range, Allocation, Measure, MeanWeight, Origin, Plan, Spec};
+use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::fips::{CountyFips, StateFips};
@@ -37,7 +37,9 @@ pub const SHIPPED_CROSSWALK: &str = "crosswalks/us-counties-2017-2023.csv";
 
 /// Arguments.
 #[derive(Debug, clap::Args)]
-#[command(after_help = "Output columns: code, code_name (with --to-vintage), period (with --period-column), then for each variable NAME and NAME_coverage (and NAME_weighting for a mean). Coverage is the part of the target made of sources whose value is known (by target share, else by weight); an estimate with no known source is empty with coverage 0. A sidecar OUTPUT.json records inputs, options, counts and the caution that allocated figures are estimates.")]
+#[command(
+    after_help = "Output columns: code, code_name (with --to-vintage), period (with --period-column), then for each variable NAME and NAME_coverage (and NAME_weighting for a mean). Coverage is the part of the target made of sources whose value is known (by target share, else by weight); an estimate with no known source is empty with coverage 0. A sidecar OUTPUT.json records inputs, options, counts and the caution that allocated figures are estimates."
+)]
 pub struct Args {
     /// The data table (CSV, TSV or Parquet).
     pub data: PathBuf,
@@ -116,11 +118,29 @@ pub struct Finding {
 /// The names of outputs that an order statistic could hide behind.
 fn looks_like_order_statistic(name: &str) -> bool {
     let n = name.to_lowercase();
-    let words: Vec<&str> = n.split(|c: char| !c.is_ascii_alphanumeric()).filter(|w| !w.is_empty()).collect();
+    let words: Vec<&str> = n
+        .split(|c: char| !c.is_ascii_alphanumeric())
+        .filter(|w| !w.is_empty())
+        .collect();
     words.iter().any(|w| {
-        ["median", "percentile", "quantile", "quartile", "decile", "pctile"].iter().any(|k| w.contains(k))
-            || (w.len() >= 2 && w.len() <= 3 && w.starts_with('p') && w[1..].bytes().all(|b| b.is_ascii_digit()))
-            || (w.len() >= 2 && w.len() <= 3 && w.starts_with('q') && w[1..].bytes().all(|b| b.is_ascii_digit()))
+        [
+            "median",
+            "percentile",
+            "quantile",
+            "quartile",
+            "decile",
+            "pctile",
+        ]
+        .iter()
+        .any(|k| w.contains(k))
+            || (w.len() >= 2
+                && w.len() <= 3
+                && w.starts_with('p')
+                && w[1..].bytes().all(|b| b.is_ascii_digit()))
+            || (w.len() >= 2
+                && w.len() <= 3
+                && w.starts_with('q')
+                && w[1..].bytes().all(|b| b.is_ascii_digit()))
     })
 }
 
@@ -128,8 +148,15 @@ fn looks_like_order_statistic(name: &str) -> bool {
 #[derive(Debug, Clone)]
 enum Request {
     Count(String),
-    Ratio { name: String, numerator: String, denominator: String },
-    Mean { column: String, weight: Option<String> },
+    Ratio {
+        name: String,
+        numerator: String,
+        denominator: String,
+    },
+    Mean {
+        column: String,
+        weight: Option<String>,
+    },
 }
 
 impl Request {
@@ -144,23 +171,39 @@ impl Request {
     fn columns(&self) -> Vec<&str> {
         match self {
             Request::Count(c) => vec![c],
-            Request::Ratio { numerator, denominator, .. } => vec![numerator, denominator],
-            Request::Mean { column, weight } => std::iter::once(column.as_str()).chain(weight.as_deref()).collect(),
+            Request::Ratio {
+                numerator,
+                denominator,
+                ..
+            } => vec![numerator, denominator],
+            Request::Mean { column, weight } => std::iter::once(column.as_str())
+                .chain(weight.as_deref())
+                .collect(),
         }
     }
 }
 
 fn parse_requests(args: &Args) -> Result<Vec<Request>> {
-    let mut out: Vec<Request> = args.sums.iter().map(|s| Request::Count(s.trim().to_string())).collect();
+    let mut out: Vec<Request> = args
+        .sums
+        .iter()
+        .map(|s| Request::Count(s.trim().to_string()))
+        .collect();
     for r in &args.ratios {
-        let bad = || Error::Usage(format!("--ratio {r:?}: expected NAME=NUMERATOR/DENOMINATOR, e.g. rate=unemployed/labor_force"));
+        let bad = || {
+            Error::Usage(format!("--ratio {r:?}: expected NAME=NUMERATOR/DENOMINATOR, e.g. rate=unemployed/labor_force"))
+        };
         let (name, rest) = r.split_once('=').ok_or_else(bad)?;
         let (num, den) = rest.split_once('/').ok_or_else(bad)?;
         let (name, num, den) = (name.trim(), num.trim(), den.trim());
         if name.is_empty() || num.is_empty() || den.is_empty() {
             return Err(bad());
         }
-        out.push(Request::Ratio { name: name.into(), numerator: num.into(), denominator: den.into() });
+        out.push(Request::Ratio {
+            name: name.into(),
+            numerator: num.into(),
+            denominator: den.into(),
+        });
     }
     for m in &args.means {
         let (column, weight) = match m.split_once(':') {
@@ -168,9 +211,14 @@ fn parse_requests(args: &Args) -> Result<Vec<Request>> {
             None => (m.trim(), None),
         };
         if column.is_empty() || weight == Some("") {
-            return Err(Error::Usage(format!("--mean {m:?}: expected COL or COL:WEIGHT")));
+            return Err(Error::Usage(format!(
+                "--mean {m:?}: expected COL or COL:WEIGHT"
+            )));
         }
-        out.push(Request::Mean { column: column.into(), weight: weight.map(String::from) });
+        out.push(Request::Mean {
+            column: column.into(),
+            weight: weight.map(String::from),
+        });
     }
     if out.is_empty() {
         return Err(Error::Usage(
@@ -180,7 +228,10 @@ fn parse_requests(args: &Args) -> Result<Vec<Request>> {
     let mut names = BTreeSet::new();
     for r in &out {
         if !names.insert(r.name().to_string()) {
-            return Err(Error::Usage(format!("the output variable {:?} is asked for twice; each name may appear once", r.name())));
+            return Err(Error::Usage(format!(
+                "the output variable {:?} is asked for twice; each name may appear once",
+                r.name()
+            )));
         }
         for c in std::iter::once(r.name()).chain(r.columns()) {
             if looks_like_order_statistic(c) && !args.allow_name.iter().any(|a| a == c) {
@@ -198,7 +249,9 @@ fn parse_separator(text: &Option<String>) -> Result<Option<u8>> {
         None => Ok(None),
         Some("tab") | Some("\\t") | Some("\t") => Ok(Some(b'\t')),
         Some(s) if s.len() == 1 && s.is_ascii() => Ok(Some(s.as_bytes()[0])),
-        Some(s) => Err(Error::Usage(format!("--separator {s:?}: give one character, or `tab`"))),
+        Some(s) => Err(Error::Usage(format!(
+            "--separator {s:?}: give one character, or `tab`"
+        ))),
     }
 }
 
@@ -228,13 +281,20 @@ fn check_args(args: &Args) -> Result<Config> {
         ));
     }
     if !(0.0..=1.0).contains(&args.min_coverage) {
-        return Err(Error::Usage(format!("--min-coverage {}: give a fraction between 0 and 1", args.min_coverage)));
+        return Err(Error::Usage(format!(
+            "--min-coverage {}: give a fraction between 0 and 1",
+            args.min_coverage
+        )));
     }
     if args.decimals > 15 {
         return Err(Error::Usage("--decimals: at most 15".into()));
     }
     if !args.data.is_file() {
-        return Err(Error::io(&args.data, "cannot open input", std::io::Error::new(std::io::ErrorKind::NotFound, "no such file")));
+        return Err(Error::io(
+            &args.data,
+            "cannot open input",
+            std::io::Error::new(std::io::ErrorKind::NotFound, "no such file"),
+        ));
     }
     let mut value_columns: Vec<String> = Vec::new();
     for r in &requests {
@@ -251,13 +311,20 @@ fn check_args(args: &Args) -> Result<Config> {
         state_column: args.state_column.clone(),
         period_column: args.period_column.clone(),
         value_columns,
-        missing: args.missing.iter().filter(|m| !m.is_empty()).cloned().collect(),
+        missing: args
+            .missing
+            .iter()
+            .filter(|m| !m.is_empty())
+            .cloned()
+            .collect(),
     };
     data::check_columns(&data)?;
     let output = Target::parse(&args.output);
     output.check_writable()?;
     if let Target::File(p) = &output {
-        if p.extension().is_some_and(|e| e.eq_ignore_ascii_case("parquet")) {
+        if p.extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
+        {
             return Err(Error::Usage(format!(
                 "{}: results are written as CSV; give a .csv name (Parquet output is not built yet)",
                 p.display()
@@ -272,19 +339,23 @@ fn check_args(args: &Args) -> Result<Config> {
             let cw = crosswalk_file::read_csv(p)?;
             match check("crosswalk", &cw) {
                 Ok(()) => {}
-                Err(e @ ChainError::Unbalanced { .. }) => {
-                    warn(format!("{}: {e}; totals will not be conserved", p.display()))
-                }
+                Err(e @ ChainError::Unbalanced { .. }) => warn(format!(
+                    "{}: {e}; totals will not be conserved",
+                    p.display()
+                )),
                 Err(e) => return Err(Error::Usage(format!("{}: {e}", p.display()))),
             }
             Some((p.clone(), cw))
         }
         None => None,
     };
-    let has_shares = crosswalk.as_ref().is_none_or(|(_, cw)| cw.rows.iter().any(|r| r.target_share.is_some()));
+    let has_shares = crosswalk
+        .as_ref()
+        .is_none_or(|(_, cw)| cw.rows.iter().any(|r| r.target_share.is_some()));
     if !has_shares {
-        if let Some(Request::Mean { column, .. }) =
-            requests.iter().find(|r| matches!(r, Request::Mean { weight: None, .. }))
+        if let Some(Request::Mean { column, .. }) = requests
+            .iter()
+            .find(|r| matches!(r, Request::Mean { weight: None, .. }))
         {
             return Err(Error::Usage(format!(
                 "--mean {column}: the crosswalk has no target_share, so the mean cannot be weighted by it; name a weight column (--mean {column}:WEIGHT)"
@@ -313,10 +384,20 @@ fn normalize(kind: CodeKind, raw: &RawCode) -> std::result::Result<String, Strin
                 .ok()
                 .filter(|n| (1..=999).contains(n))
                 .ok_or_else(|| format!("county part {:?} is not a number 1..999", raw.code))?;
-            CountyFips::new(st, n).map(|c| c.to_string()).ok_or_else(|| "not a county code".into())
+            CountyFips::new(st, n)
+                .map(|c| c.to_string())
+                .ok_or_else(|| "not a county code".into())
         }
-        (CodeKind::County, None) => raw.code.parse::<CountyFips>().map(|c| c.to_string()).map_err(|e| e.to_string()),
-        (CodeKind::State, _) => raw.code.parse::<StateFips>().map(|c| c.to_string()).map_err(|e| e.to_string()),
+        (CodeKind::County, None) => raw
+            .code
+            .parse::<CountyFips>()
+            .map(|c| c.to_string())
+            .map_err(|e| e.to_string()),
+        (CodeKind::State, _) => raw
+            .code
+            .parse::<StateFips>()
+            .map(|c| c.to_string())
+            .map_err(|e| e.to_string()),
         (CodeKind::Text, _) => Ok(raw.code.trim().to_string()),
     }
 }
@@ -336,7 +417,9 @@ fn code_kind(cw: &Crosswalk) -> CodeKind {
 fn rows_for<'a>(cw: &'a Crosswalk, code: &str) -> impl Iterator<Item = &'a CrosswalkRow> + 'a {
     let start = cw.rows.partition_point(|r| r.from_code.as_str() < code);
     let code = code.to_string();
-    cw.rows[start..].iter().take_while(move |r| r.from_code == code)
+    cw.rows[start..]
+        .iter()
+        .take_while(move |r| r.from_code == code)
 }
 
 fn sorted(mut cw: Crosswalk) -> Crosswalk {
@@ -372,7 +455,12 @@ fn renamed_only(reference: &Reference, code: &str) -> bool {
     reference
         .changes
         .iter()
-        .filter(|c| c.from_code == code && c.to_code != code && c.kind != ChangeKind::PartTransfer && c.kind != ChangeKind::Created)
+        .filter(|c| {
+            c.from_code == code
+                && c.to_code != code
+                && c.kind != ChangeKind::PartTransfer
+                && c.kind != ChangeKind::Created
+        })
         .all(|c| c.kind == ChangeKind::Renamed)
 }
 
@@ -384,7 +472,12 @@ fn carry_codes(
     shipped: Option<&Crosswalk>,
     shipped_label: &str,
 ) -> Carrying {
-    let mut out = Carrying { crosswalk: Crosswalk::default(), carried: BTreeSet::new(), findings: Vec::new(), unweighted: Vec::new() };
+    let mut out = Carrying {
+        crosswalk: Crosswalk::default(),
+        carried: BTreeSet::new(),
+        findings: Vec::new(),
+        unweighted: Vec::new(),
+    };
     for (code, &(rows, first_line)) in codes {
         let finding = |kind: &'static str, detail: String| Finding {
             kind,
@@ -401,7 +494,10 @@ fn carry_codes(
                 if !valid_now {
                     out.carried.insert(code.clone());
                 }
-                out.findings.push(finding("from-crosswalk", format!("{} row(s) of the given crosswalk", rows.len())));
+                out.findings.push(finding(
+                    "from-crosswalk",
+                    format!("{} row(s) of the given crosswalk", rows.len()),
+                ));
                 out.crosswalk.rows.extend(rows);
                 continue;
             }
@@ -417,12 +513,17 @@ fn carry_codes(
             Carried::To { code: to, note } => {
                 out.carried.insert(code.clone());
                 let rows: Vec<CrosswalkRow> = if year == 2023 {
-                    shipped.map(|s| rows_for(s, code).cloned().collect()).unwrap_or_default()
+                    shipped
+                        .map(|s| rows_for(s, code).cloned().collect())
+                        .unwrap_or_default()
                 } else {
                     Vec::new()
                 };
                 if !rows.is_empty() {
-                    out.findings.push(finding("carried", format!("carried to {to} ({note}); weights from {shipped_label}")));
+                    out.findings.push(finding(
+                        "carried",
+                        format!("carried to {to} ({note}); weights from {shipped_label}"),
+                    ));
                     out.crosswalk.rows.extend(rows);
                     continue;
                 }
@@ -444,12 +545,17 @@ fn carry_codes(
             Carried::Divided { successors, note } => {
                 out.carried.insert(code.clone());
                 let rows: Vec<CrosswalkRow> = if year == 2023 {
-                    shipped.map(|s| rows_for(s, code).cloned().collect()).unwrap_or_default()
+                    shipped
+                        .map(|s| rows_for(s, code).cloned().collect())
+                        .unwrap_or_default()
                 } else {
                     Vec::new()
                 };
                 if rows.is_empty() {
-                    out.unweighted.push((code.clone(), format!("{note}; successors {}", successors.join(", "))));
+                    out.unweighted.push((
+                        code.clone(),
+                        format!("{note}; successors {}", successors.join(", ")),
+                    ));
                     out.findings.push(finding(
                         "divided-without-weights",
                         format!("divided among {} ({note}); no weights: rows left out. Give --crosswalk FILE with rows from {code} to the {year} units", successors.join(", ")),
@@ -457,14 +563,18 @@ fn carry_codes(
                 } else {
                     out.findings.push(finding(
                         "divided",
-                        format!("divided among {} ({note}); weights from {shipped_label}", successors.join(", ")),
+                        format!(
+                            "divided among {} ({note}); weights from {shipped_label}",
+                            successors.join(", ")
+                        ),
                     ));
                     out.crosswalk.rows.extend(rows);
                 }
             }
             Carried::Unknown => out.findings.push(finding(
                 "unknown-code",
-                format!("not a county code of any vintage in the built-in reference; rows left out"),
+                "not a county code of any vintage in the built-in reference; rows left out"
+                    .to_string(),
             )),
         }
     }
@@ -480,10 +590,18 @@ fn carry_codes(
         .filter(|r| r.basis != Basis::History)
         .filter_map(|r| r.to_code.clone())
         .collect();
-    let present: BTreeSet<String> = out.crosswalk.rows.iter().map(|r| r.from_code.clone()).collect();
+    let present: BTreeSet<String> = out
+        .crosswalk
+        .rows
+        .iter()
+        .map(|r| r.from_code.clone())
+        .collect();
     let mut extra: Vec<CrosswalkRow> = Vec::new();
     let mut taken: BTreeSet<String> = BTreeSet::new();
-    for table in [user, if year == 2023 { shipped } else { None }].into_iter().flatten() {
+    for table in [user, if year == 2023 { shipped } else { None }]
+        .into_iter()
+        .flatten()
+    {
         let wanted: BTreeSet<&str> = table
             .rows
             .iter()
@@ -577,14 +695,31 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         Some(year) => {
             let reference = us_counties()?;
             if reference.units_in(year).next().is_none() {
-                return Err(Error::Usage(format!("--to-vintage {year}: the built-in reference has no counties for that year")));
+                return Err(Error::Usage(format!(
+                    "--to-vintage {year}: the built-in reference has no counties for that year"
+                )));
             }
             let shipped_file = shipped_path();
-            let shipped = if year == 2023 { shipped_crosswalk(&shipped_file)? } else { None };
+            let shipped = if year == 2023 {
+                shipped_crosswalk(&shipped_file)?
+            } else {
+                None
+            };
             let user = config.crosswalk.as_ref().map(|(_, cw)| sorted(cw.clone()));
-            let c = carry_codes(&by_code, year, reference, user.as_ref(), shipped.as_ref(), SHIPPED_CROSSWALK);
+            let c = carry_codes(
+                &by_code,
+                year,
+                reference,
+                user.as_ref(),
+                shipped.as_ref(),
+                SHIPPED_CROSSWALK,
+            );
             if !c.unweighted.is_empty() && !args.skip_unweighted {
-                let listed: Vec<String> = c.unweighted.iter().map(|(code, note)| format!("{code} ({note})")).collect();
+                let listed: Vec<String> = c
+                    .unweighted
+                    .iter()
+                    .map(|(code, note)| format!("{code} ({note})"))
+                    .collect();
                 return Err(Error::Usage(format!(
                     "{} code(s) were divided among several {year} units and no crosswalk gives their weights: {}. Give --crosswalk FILE with rows from each of these codes to the {year} units (from_code,to_code,weight,target_share,basis), or leave their rows out with --skip-unweighted",
                     listed.len(),
@@ -592,7 +727,8 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 )));
             }
             findings.extend(c.findings);
-            let mut targets: Vec<String> = reference.units_in(year).map(|u| u.code.clone()).collect();
+            let mut targets: Vec<String> =
+                reference.units_in(year).map(|u| u.code.clone()).collect();
             targets.sort();
             targets.dedup();
             let carried = c.carried;
@@ -606,17 +742,33 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             let names: Vec<String> = plan
                 .targets
                 .iter()
-                .map(|t| reference.unit(t, year).map_or(String::new(), |u| u.full_name()))
+                .map(|t| {
+                    reference
+                        .unit(t, year)
+                        .map_or(String::new(), |u| u.full_name())
+                })
                 .collect();
             let label = match &config.crosswalk {
-                Some((p, _)) => format!("built-in change history to {year}, {}, {}", p.display(), SHIPPED_CROSSWALK),
+                Some((p, _)) => format!(
+                    "built-in change history to {year}, {}, {}",
+                    p.display(),
+                    SHIPPED_CROSSWALK
+                ),
                 None => format!("built-in change history to {year}, {SHIPPED_CROSSWALK}"),
             };
             (plan, carried.len(), Some(names), label)
         }
         None => {
-            let (path, cw) = config.crosswalk.as_ref().ok_or_else(|| Error::Usage("no crosswalk".into()))?;
-            (Plan::new(cw, &[], |_| Origin::Direct), 0, None, path.display().to_string())
+            let (path, cw) = config
+                .crosswalk
+                .as_ref()
+                .ok_or_else(|| Error::Usage("no crosswalk".into()))?;
+            (
+                Plan::new(cw, &[], |_| Origin::Direct),
+                0,
+                None,
+                path.display().to_string(),
+            )
         }
     };
 
@@ -624,7 +776,10 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     let mut source_of: Vec<Option<u32>> = Vec::with_capacity(normalized.len());
     let mut unmatched: BTreeMap<String, (u64, u64)> = BTreeMap::new();
     for (n, &(rows, first)) in normalized.iter().zip(&indexed.code_rows) {
-        let s = n.as_ref().and_then(|c| plan.source_index(c)).map(|s| s as u32);
+        let s = n
+            .as_ref()
+            .and_then(|c| plan.source_index(c))
+            .map(|s| s as u32);
         if let (None, Some(code)) = (s, n) {
             let e = unmatched.entry(code.clone()).or_insert((0, first));
             e.0 += rows;
@@ -669,13 +824,17 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                     period: indexed.periods[p].clone(),
                     rows: rows as u64,
                     first_line: Some(line),
-                    detail: format!("{rows} rows for this code and period; their values were added together"),
+                    detail: format!(
+                        "{rows} rows for this code and period; their values were added together"
+                    ),
                 });
             }
         }
     }
     for (s, code) in plan.sources.iter().enumerate() {
-        let absent: Vec<usize> = (0..indexed.periods.len()).filter(|&p| folded.cell(p, s).0 == 0).collect();
+        let absent: Vec<usize> = (0..indexed.periods.len())
+            .filter(|&p| folded.cell(p, s).0 == 0)
+            .collect();
         if absent.len() == indexed.periods.len() {
             findings.push(Finding {
                 kind: "absent-source",
@@ -693,40 +852,62 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                     period: indexed.periods[p].clone(),
                     rows: 0,
                     first_line: None,
-                    detail: "no row for this source in this period; its targets' coverage is lower".into(),
+                    detail: "no row for this source in this period; its targets' coverage is lower"
+                        .into(),
                 });
             }
         }
     }
 
     // Allocate.
-    let column = |name: &str| table.value_columns.iter().position(|c| c == name).unwrap_or(0);
+    let column = |name: &str| {
+        table
+            .value_columns
+            .iter()
+            .position(|c| c == name)
+            .unwrap_or(0)
+    };
     let measures: Vec<Measure> = config
         .requests
         .iter()
         .map(|r| match r {
             Request::Count(c) => Measure::Count(column(c)),
-            Request::Ratio { numerator, denominator, .. } => {
-                Measure::Ratio { numerator: column(numerator), denominator: column(denominator) }
-            }
+            Request::Ratio {
+                numerator,
+                denominator,
+                ..
+            } => Measure::Ratio {
+                numerator: column(numerator),
+                denominator: column(denominator),
+            },
             Request::Mean { column: c, weight } => Measure::Mean {
                 column: column(c),
-                weight: weight.as_deref().map_or(MeanWeight::TargetShare, |w| MeanWeight::Column(column(w))),
+                weight: weight
+                    .as_deref()
+                    .map_or(MeanWeight::TargetShare, |w| MeanWeight::Column(column(w))),
             },
         })
         .collect();
-    let spec = Spec { measures, min_coverage: args.min_coverage };
+    let spec = Spec {
+        measures,
+        min_coverage: args.min_coverage,
+    };
 
     // Write.
     let layout = ResultLayout {
-        names: config.requests.iter().map(|r| r.name().to_string()).collect(),
+        names: config
+            .requests
+            .iter()
+            .map(|r| r.name().to_string())
+            .collect(),
         notes: config
             .requests
             .iter()
             .map(|r| match r {
-                Request::Mean { column, weight } => {
-                    Some((format!("{column}_weighting"), weight.clone().unwrap_or_else(|| "target_share".into())))
-                }
+                Request::Mean { column, weight } => Some((
+                    format!("{column}_weighting"),
+                    weight.clone().unwrap_or_else(|| "target_share".into()),
+                )),
                 _ => None,
             })
             .collect(),
@@ -736,12 +917,22 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     };
     let mut coverage = vec![(0u64, 0u64, 0u64, 0u64); spec.measures.len()];
     let mut overlaps: Vec<(usize, usize)> = Vec::new();
-    let run_allocation = |targets: std::ops::Range<usize>| allocate_range(&plan, &folded.values, &spec, targets);
+    let run_allocation =
+        |targets: std::ops::Range<usize>| allocate_range(&plan, &folded.values, &spec, targets);
     let mut seen = |a: &Allocation| {
         add_coverage(&mut coverage, a);
         overlaps.extend(a.overlaps.iter().copied());
     };
-    write_to(&config.output, |w| data::write_results(w, &plan, &indexed.periods, &run_allocation, &mut seen, &layout))?;
+    write_to(&config.output, |w| {
+        data::write_results(
+            w,
+            &plan,
+            &indexed.periods,
+            &run_allocation,
+            &mut seen,
+            &layout,
+        )
+    })?;
     for &(t, p) in &overlaps {
         findings.push(Finding {
             kind: "overlap",
@@ -764,7 +955,11 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             .map(|(p, s)| folded.cell(p, s).0 as u64)
             .sum(),
         targets: plan.targets.len(),
-        periods: if with_period { indexed.periods.len() } else { 0 },
+        periods: if with_period {
+            indexed.periods.len()
+        } else {
+            0
+        },
         carried,
         duplicates,
         counts,
@@ -821,12 +1016,21 @@ fn add_coverage(c: &mut [(u64, u64, u64, u64)], a: &Allocation) {
 }
 
 fn print_summary(global: Global, config: &Config, s: &Summary) {
-    say(global, format!("regionkey apply: {} data rows; {} allocated", s.rows, s.rows_allocated));
+    say(
+        global,
+        format!(
+            "regionkey apply: {} data rows; {} allocated",
+            s.rows, s.rows_allocated
+        ),
+    );
     for (kind, (n, rows)) in &s.counts {
         say(global, format!("  {kind}: {n} ({rows} rows)"));
     }
     if s.carried > 0 {
-        say(global, format!("  codes carried from earlier vintages: {}", s.carried));
+        say(
+            global,
+            format!("  codes carried from earlier vintages: {}", s.carried),
+        );
     }
     for (r, c) in config.requests.iter().zip(&s.coverage) {
         say(
@@ -873,7 +1077,13 @@ pub fn sidecar_path(path: &Path) -> PathBuf {
     PathBuf::from(s)
 }
 
-fn sidecar_json(args: &Args, config: &Config, crosswalk_label: &str, s: &Summary, layout: &ResultLayout) -> Result<String> {
+fn sidecar_json(
+    args: &Args,
+    config: &Config,
+    crosswalk_label: &str,
+    s: &Summary,
+    layout: &ResultLayout,
+) -> Result<String> {
     use serde_json::json;
     let mut inputs = vec![json!({
         "role": "data",
@@ -893,10 +1103,18 @@ fn sidecar_json(args: &Args, config: &Config, crosswalk_label: &str, s: &Summary
         .names
         .iter()
         .zip(&s.coverage)
-        .map(|(n, c)| (n.clone(), json!({"estimates": c.0, "full": c.1, "partial": c.2, "none": c.3})))
+        .map(|(n, c)| {
+            (
+                n.clone(),
+                json!({"estimates": c.0, "full": c.1, "partial": c.2, "none": c.3}),
+            )
+        })
         .collect();
-    let reported: serde_json::Map<String, serde_json::Value> =
-        s.counts.iter().map(|(k, (n, rows))| (k.to_string(), json!({"items": n, "rows": rows}))).collect();
+    let reported: serde_json::Map<String, serde_json::Value> = s
+        .counts
+        .iter()
+        .map(|(k, (n, rows))| (k.to_string(), json!({"items": n, "rows": rows})))
+        .collect();
     let value = json!({
         "command": "apply",
         "regionkey_version": env!("CARGO_PKG_VERSION"),
@@ -926,7 +1144,9 @@ fn sidecar_json(args: &Args, config: &Config, crosswalk_label: &str, s: &Summary
         "coverage": coverage,
         "caution": CAUTION,
     });
-    serde_json::to_string_pretty(&value).map(|t| t + "\n").map_err(|e| Error::Usage(format!("cannot write metadata: {e}")))
+    serde_json::to_string_pretty(&value)
+        .map(|t| t + "\n")
+        .map_err(|e| Error::Usage(format!("cannot write metadata: {e}")))
 }
 
 /// Reads a data table (exposed for tests of the data path).
@@ -942,20 +1162,48 @@ mod tests {
 
     #[test]
     fn order_statistic_names_are_recognized() {
-        for n in ["median_income", "income_median", "p50", "hh_p90", "percentile_75", "q3", "MedianAge"] {
+        for n in [
+            "median_income",
+            "income_median",
+            "p50",
+            "hh_p90",
+            "percentile_75",
+            "q3",
+            "MedianAge",
+        ] {
             assert!(looks_like_order_statistic(n), "{n}");
         }
-        for n in ["population", "pop2020", "unemployed", "rate", "people", "pct_poor"] {
+        for n in [
+            "population",
+            "pop2020",
+            "unemployed",
+            "rate",
+            "people",
+            "pct_poor",
+        ] {
             assert!(!looks_like_order_statistic(n), "{n}");
         }
     }
 
     #[test]
     fn codes_with_a_separate_state_part_are_joined() {
-        let raw = RawCode { state: Some("6".into()), code: "37".into() };
+        let raw = RawCode {
+            state: Some("6".into()),
+            code: "37".into(),
+        };
         assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
-        let raw = RawCode { state: None, code: "6037.0".into() };
+        let raw = RawCode {
+            state: None,
+            code: "6037.0".into(),
+        };
         assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
-        assert!(normalize(CodeKind::County, &RawCode { state: None, code: "abc".into() }).is_err());
+        assert!(normalize(
+            CodeKind::County,
+            &RawCode {
+                state: None,
+                code: "abc".into()
+            }
+        )
+        .is_err());
     }
 }

@@ -50,11 +50,25 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             "method": "weight(x,z) = sum over y of weight(x,y) * weight(y,z); target_share(x,z) = sum over y of target_share(x,y) * target_share(y,z), exact when each y lies wholly in one x or one z; uncovered shares carry through",
             "caution": crate::cli::apply::CAUTION,
         });
-        let text = serde_json::to_string_pretty(&json).map_err(|e| Error::Usage(format!("cannot write metadata: {e}")))? + "\n";
+        let text = serde_json::to_string_pretty(&json)
+            .map_err(|e| Error::Usage(format!("cannot write metadata: {e}")))?
+            + "\n";
         write_file(&sidecar, |w| w.write_all(text.as_bytes()))?;
     }
-    let sources = composed.rows.iter().map(|r| &r.from_code).collect::<std::collections::BTreeSet<_>>().len();
-    say(global, format!("regionkey chain: {} rows, {} sources", composed.rows.len(), sources));
+    let sources = composed
+        .rows
+        .iter()
+        .map(|r| &r.from_code)
+        .collect::<std::collections::BTreeSet<_>>()
+        .len();
+    say(
+        global,
+        format!(
+            "regionkey chain: {} rows, {} sources",
+            composed.rows.len(),
+            sources
+        ),
+    );
     say(global, format!("  {}", crate::cli::apply::CAUTION));
     Ok(())
 }

@@ -89,7 +89,11 @@ impl Plan {
     /// if no row reaches them (so a unit of the target vintage with no data
     /// is written with coverage 0 rather than left out); `origin` tells
     /// which source codes were carried from an earlier vintage.
-    pub fn new(crosswalk: &Crosswalk, extra_targets: &[String], origin: impl Fn(&str) -> Origin) -> Plan {
+    pub fn new(
+        crosswalk: &Crosswalk,
+        extra_targets: &[String],
+        origin: impl Fn(&str) -> Origin,
+    ) -> Plan {
         let sources: Vec<String> = crosswalk
             .rows
             .iter()
@@ -131,7 +135,12 @@ impl Plan {
         for i in 0..targets.len() {
             offsets[i + 1] += offsets[i];
         }
-        Plan { sources, targets, offsets, links: pairs.into_iter().map(|(_, l)| l).collect() }
+        Plan {
+            sources,
+            targets,
+            offsets,
+            links: pairs.into_iter().map(|(_, l)| l).collect(),
+        }
     }
 
     /// The index of a source code.
@@ -151,7 +160,9 @@ impl Plan {
 }
 
 /// Values of the sources, by period and input column. A value is either a
-/// finite number or missing (absent from the data, or empty).
+/// finite number or missing (absent from the data, or empty). Held source
+/// by source, so the periods of one source lie together (allocation reads
+/// them in that order).
 #[derive(Debug, Clone)]
 pub struct SourceValues {
     periods: usize,
@@ -164,7 +175,39 @@ pub struct SourceValues {
 impl SourceValues {
     /// All missing.
     pub fn new(periods: usize, sources: usize, columns: usize) -> SourceValues {
-        SourceValues { periods, sources, columns, values: vec![f64::NAN; periods * sources * columns] }
+        SourceValues {
+            periods,
+            sources,
+            columns,
+            values: vec![f64::NAN; periods * sources * columns],
+        }
+    }
+
+    /// From values laid out period by period (index
+    /// `(period · sources + source) · columns + column`, NaN for missing), as
+    /// rows of a table usually come; rearranged source by source in
+    /// cache-sized blocks.
+    pub fn from_period_major(
+        periods: usize,
+        sources: usize,
+        columns: usize,
+        by_period: &[f64],
+    ) -> SourceValues {
+        let mut v = SourceValues::new(periods, sources, columns);
+        const BLOCK: usize = 64;
+        for p0 in (0..periods).step_by(BLOCK) {
+            for s0 in (0..sources).step_by(BLOCK) {
+                for s in s0..(s0 + BLOCK).min(sources) {
+                    for p in p0..(p0 + BLOCK).min(periods) {
+                        let from = (p * sources + s) * columns;
+                        let to = (s * periods + p) * columns;
+                        v.values[to..to + columns]
+                            .copy_from_slice(&by_period[from..from + columns]);
+                    }
+                }
+            }
+        }
+        v
     }
 
     /// Number of periods.
@@ -172,8 +215,13 @@ impl SourceValues {
         self.periods
     }
 
+    /// Number of sources.
+    pub fn sources(&self) -> usize {
+        self.sources
+    }
+
     fn at(&self, period: usize, source: usize, column: usize) -> usize {
-        (period * self.sources + source) * self.columns + column
+        (source * self.periods + period) * self.columns + column
     }
 
     /// Adds `value` to the cell (a missing cell becomes `value`); adding is
@@ -268,7 +316,8 @@ pub struct Allocation {
 impl Allocation {
     /// The estimate for a target, period and measure (indices).
     pub fn get(&self, target: usize, period: usize, measure: usize) -> Estimate {
-        self.estimates[((target - self.first_target) * self.periods + period) * self.measures + measure]
+        self.estimates
+            [((target - self.first_target) * self.periods + period) * self.measures + measure]
     }
 
     /// The estimates of one target and period, one per measure.
@@ -307,7 +356,12 @@ pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
 
 /// [`allocate`] for a range of targets only (so a large result can be
 /// computed and written a piece at a time).
-pub fn allocate_range(plan: &Plan, values: &SourceValues, spec: &Spec, targets: std::ops::Range<usize>) -> Allocation {
+pub fn allocate_range(
+    plan: &Plan,
+    values: &SourceValues,
+    spec: &Spec,
+    targets: std::ops::Range<usize>,
+) -> Allocation {
     let periods = values.periods();
     let m = spec.measures.len();
     let first_target = targets.start;
@@ -316,16 +370,26 @@ pub fn allocate_range(plan: &Plan, values: &SourceValues, spec: &Spec, targets: 
         .into_par_iter()
         .map(|t| {
             let links = plan.links_of(t);
+            // Sums for every (period, measure), filled link by link so each
+            // source's periods are read in order.
+            let mut sums = vec![Sums::default(); periods * m];
+            for l in links {
+                for p in 0..periods {
+                    for (k, measure) in spec.measures.iter().enumerate() {
+                        add_link(&mut sums[p * m + k], l, values, p, *measure);
+                    }
+                }
+            }
             let mut out = Vec::with_capacity(periods * m);
             let mut overlaps = Vec::new();
             for p in 0..periods {
                 let mut overlap = false;
-                for measure in &spec.measures {
-                    let sums = sum_links(links, values, p, *measure);
-                    if sums.active[0] && sums.active[1] && sums.known_share > 1.0 + SHARE_SLACK {
+                for (k, measure) in spec.measures.iter().enumerate() {
+                    let s = &sums[p * m + k];
+                    if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
                         overlap = true;
                     }
-                    out.push(finish(&sums, *measure, spec.min_coverage));
+                    out.push(finish(s, *measure, spec.min_coverage));
                 }
                 if overlap {
                     overlaps.push(p);
@@ -340,54 +404,68 @@ pub fn allocate_range(plan: &Plan, values: &SourceValues, spec: &Spec, targets: 
         estimates.extend(e);
         overlaps.extend(o.into_iter().map(|p| (first_target + i, p)));
     }
-    Allocation { first_target, targets: count, periods, measures: m, estimates, overlaps }
+    Allocation {
+        first_target,
+        targets: count,
+        periods,
+        measures: m,
+        estimates,
+        overlaps,
+    }
 }
 
-fn sum_links(links: &[Link], values: &SourceValues, p: usize, measure: Measure) -> Sums {
-    let mut s = Sums::default();
-    for l in links {
-        let o = slot(l.origin);
-        let part = l.coverage_part();
-        s.total_part[o] += part;
-        let src = l.source as usize;
-        // (numerator, denominator) contributed by this link, if known.
-        let contribution = match measure {
-            Measure::Count(c) => values.get(p, src, c).map(|v| (v * l.weight, 0.0)),
-            Measure::Ratio { numerator, denominator } => {
-                match (values.get(p, src, numerator), values.get(p, src, denominator)) {
-                    (Some(n), Some(d)) => Some((n * l.weight, d * l.weight)),
-                    _ => None,
-                }
+fn add_link(s: &mut Sums, l: &Link, values: &SourceValues, p: usize, measure: Measure) {
+    let o = slot(l.origin);
+    let part = l.coverage_part();
+    s.total_part[o] += part;
+    let src = l.source as usize;
+    // (numerator, denominator) contributed by this link, if known.
+    let contribution = match measure {
+        Measure::Count(c) => values.get(p, src, c).map(|v| (v * l.weight, 0.0)),
+        Measure::Ratio {
+            numerator,
+            denominator,
+        } => {
+            match (
+                values.get(p, src, numerator),
+                values.get(p, src, denominator),
+            ) {
+                (Some(n), Some(d)) => Some((n * l.weight, d * l.weight)),
+                _ => None,
             }
-            Measure::Mean { column, weight: MeanWeight::Column(w) } => {
-                match (values.get(p, src, column), values.get(p, src, w)) {
-                    (Some(v), Some(wv)) => Some((v * wv * l.weight, wv * l.weight)),
-                    _ => None,
-                }
-            }
-            // A piece with no target share cannot be weighted by it: it
-            // counts as not known for this measure.
-            Measure::Mean { column, weight: MeanWeight::TargetShare } => {
-                match (values.get(p, src, column), l.target_share) {
-                    (Some(v), Some(ts)) => Some((v * ts, ts)),
-                    _ => None,
-                }
-            }
-        };
-        if let Some((n, d)) = contribution {
-            s.numerator += n;
-            s.denominator += d;
-            s.known_part[o] += part;
-            s.active[o] = true;
-            s.known_share += l.target_share.unwrap_or(0.0);
         }
+        Measure::Mean {
+            column,
+            weight: MeanWeight::Column(w),
+        } => match (values.get(p, src, column), values.get(p, src, w)) {
+            (Some(v), Some(wv)) => Some((v * wv * l.weight, wv * l.weight)),
+            _ => None,
+        },
+        // A piece with no target share cannot be weighted by it: it
+        // counts as not known for this measure.
+        Measure::Mean {
+            column,
+            weight: MeanWeight::TargetShare,
+        } => match (values.get(p, src, column), l.target_share) {
+            (Some(v), Some(ts)) => Some((v * ts, ts)),
+            _ => None,
+        },
+    };
+    if let Some((n, d)) = contribution {
+        s.numerator += n;
+        s.denominator += d;
+        s.known_part[o] += part;
+        s.active[o] = true;
+        s.known_share += l.target_share.unwrap_or(0.0);
     }
-    s
 }
 
 fn finish(s: &Sums, measure: Measure, min_coverage: f64) -> Estimate {
     if !s.active[0] && !s.active[1] {
-        return Estimate { value: None, coverage: 0.0 };
+        return Estimate {
+            value: None,
+            coverage: 0.0,
+        };
     }
     let mut whole = 0.0;
     let mut known = 0.0;
@@ -397,7 +475,11 @@ fn finish(s: &Sums, measure: Measure, min_coverage: f64) -> Estimate {
             known += s.known_part[o];
         }
     }
-    let coverage = if whole > 0.0 { (known / whole).min(1.0) } else { 0.0 };
+    let coverage = if whole > 0.0 {
+        (known / whole).min(1.0)
+    } else {
+        0.0
+    };
     let value = match measure {
         Measure::Count(_) => Some(s.numerator),
         _ => (s.denominator != 0.0).then(|| s.numerator / s.denominator),
@@ -464,8 +546,22 @@ mod tests {
     fn counts_follow_the_weights_and_coverage_is_one_when_all_is_known() {
         let plan = worked_plan();
         // A = 100, B = 50, C = 10.
-        let v = values(&[("A", &[Some(100.0)]), ("B", &[Some(50.0)]), ("C", &[Some(10.0)])], &plan);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+        let v = values(
+            &[
+                ("A", &[Some(100.0)]),
+                ("B", &[Some(50.0)]),
+                ("C", &[Some(10.0)]),
+            ],
+            &plan,
+        );
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Count(0)],
+                min_coverage: 0.0,
+            },
+        );
         // X = 100 * 0.6 + 10 * 1.0 = 70; Y = 100 * 0.4 + 50 * 1.0 = 90.
         let x = a.get(target(&plan, "X"), 0, 0);
         let y = a.get(target(&plan, "Y"), 0, 0);
@@ -481,7 +577,10 @@ mod tests {
         let plan = worked_plan();
         // C is absent; B's value is empty.
         let v = values(&[("A", &[Some(100.0)]), ("B", &[None])], &plan);
-        let spec = Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 };
+        let spec = Spec {
+            measures: vec![Measure::Count(0)],
+            min_coverage: 0.0,
+        };
         let a = allocate(&plan, &v, &spec);
         // X: known A piece 0.75 of X, unknown C piece 0.25 -> coverage 0.75 / (0.75 + 0.25) = 0.75;
         //    value from A only: 100 * 0.6 = 60.
@@ -493,30 +592,64 @@ mod tests {
         assert!((y.coverage - 0.2).abs() < 1e-12);
         assert!((y.value.unwrap() - 40.0).abs() < 1e-12);
         // With --min-coverage 0.5: X (0.75) keeps its value, Y (0.2) loses it.
-        let a = allocate(&plan, &v, &Spec { min_coverage: 0.5, ..spec });
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                min_coverage: 0.5,
+                ..spec
+            },
+        );
         assert_eq!(a.get(target(&plan, "X"), 0, 0).value, Some(60.0));
         let y = a.get(target(&plan, "Y"), 0, 0);
         assert_eq!(y.value, None);
-        assert!((y.coverage - 0.2).abs() < 1e-12, "coverage is still reported");
+        assert!(
+            (y.coverage - 0.2).abs() < 1e-12,
+            "coverage is still reported"
+        );
     }
 
     #[test]
     fn a_target_with_no_known_source_has_no_value_and_coverage_zero() {
         let plan = worked_plan();
         let v = values(&[("B", &[Some(50.0)])], &plan);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Count(0)],
+                min_coverage: 0.0,
+            },
+        );
         // X is made of A and C, both absent.
-        assert_eq!(a.get(target(&plan, "X"), 0, 0), Estimate { value: None, coverage: 0.0 });
+        assert_eq!(
+            a.get(target(&plan, "X"), 0, 0),
+            Estimate {
+                value: None,
+                coverage: 0.0
+            }
+        );
     }
 
     #[test]
     fn without_target_shares_coverage_is_the_known_part_of_the_incoming_weight() {
         let cw = Crosswalk {
-            rows: vec![row("A", Some("X"), 0.5, None), row("B", Some("X"), 1.0, None), row("A", Some("Y"), 0.5, None)],
+            rows: vec![
+                row("A", Some("X"), 0.5, None),
+                row("B", Some("X"), 1.0, None),
+                row("A", Some("Y"), 0.5, None),
+            ],
         };
         let plan = Plan::new(&cw, &[], direct);
         let v = values(&[("A", &[Some(8.0)])], &plan);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Count(0)],
+                min_coverage: 0.0,
+            },
+        );
         // X receives weight 0.5 from A (known) and 1.0 from B (absent): 0.5 / 1.5 = 1/3.
         let x = a.get(target(&plan, "X"), 0, 0);
         assert!((x.coverage - 1.0 / 3.0).abs() < 1e-12);
@@ -530,24 +663,44 @@ mod tests {
         //   Q: 90 unemployed of 300 (rate 30%), Z share 0.5 by area.
         // Rebuilt rate: (10 + 90) / (100 + 300) = 100 / 400 = 0.25.
         // A naive mean of the rates would say (0.10 + 0.30) / 2 = 0.20.
-        let cw = Crosswalk { rows: vec![row("P", Some("Z"), 1.0, Some(0.5)), row("Q", Some("Z"), 1.0, Some(0.5))] };
+        let cw = Crosswalk {
+            rows: vec![
+                row("P", Some("Z"), 1.0, Some(0.5)),
+                row("Q", Some("Z"), 1.0, Some(0.5)),
+            ],
+        };
         let plan = Plan::new(&cw, &[], direct);
         let v = values(
-            &[("P", &[Some(10.0), Some(100.0), Some(0.10)]), ("Q", &[Some(90.0), Some(300.0), Some(0.30)])],
+            &[
+                ("P", &[Some(10.0), Some(100.0), Some(0.10)]),
+                ("Q", &[Some(90.0), Some(300.0), Some(0.30)]),
+            ],
             &plan,
         );
         let spec = Spec {
             measures: vec![
-                Measure::Ratio { numerator: 0, denominator: 1 },
-                Measure::Mean { column: 2, weight: MeanWeight::TargetShare },
-                Measure::Mean { column: 2, weight: MeanWeight::Column(1) },
+                Measure::Ratio {
+                    numerator: 0,
+                    denominator: 1,
+                },
+                Measure::Mean {
+                    column: 2,
+                    weight: MeanWeight::TargetShare,
+                },
+                Measure::Mean {
+                    column: 2,
+                    weight: MeanWeight::Column(1),
+                },
             ],
             min_coverage: 0.0,
         };
         let a = allocate(&plan, &v, &spec);
         let row = a.row(0, 0);
         assert!((row[0].value.unwrap() - 0.25).abs() < 1e-12);
-        assert!((row[1].value.unwrap() - 0.20).abs() < 1e-12, "area-weighted mean of rates");
+        assert!(
+            (row[1].value.unwrap() - 0.20).abs() < 1e-12,
+            "area-weighted mean of rates"
+        );
         // Weighting the rate by the labour force gives back the rebuilt rate:
         // (0.10 * 100 + 0.30 * 300) / 400 = 100 / 400 = 0.25.
         assert!((row[2].value.unwrap() - 0.25).abs() < 1e-12);
@@ -555,12 +708,39 @@ mod tests {
 
     #[test]
     fn a_ratio_uses_only_sources_where_both_parts_are_known() {
-        let cw = Crosswalk { rows: vec![row("P", Some("Z"), 1.0, Some(0.5)), row("Q", Some("Z"), 1.0, Some(0.5))] };
+        let cw = Crosswalk {
+            rows: vec![
+                row("P", Some("Z"), 1.0, Some(0.5)),
+                row("Q", Some("Z"), 1.0, Some(0.5)),
+            ],
+        };
         let plan = Plan::new(&cw, &[], direct);
         // Q's denominator is missing: the rate is P's alone, 10 / 100, coverage 0.5.
-        let v = values(&[("P", &[Some(10.0), Some(100.0)]), ("Q", &[Some(90.0), None])], &plan);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Ratio { numerator: 0, denominator: 1 }], min_coverage: 0.0 });
-        assert_eq!(a.get(0, 0, 0), Estimate { value: Some(0.1), coverage: 0.5 });
+        let v = values(
+            &[
+                ("P", &[Some(10.0), Some(100.0)]),
+                ("Q", &[Some(90.0), None]),
+            ],
+            &plan,
+        );
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Ratio {
+                    numerator: 0,
+                    denominator: 1,
+                }],
+                min_coverage: 0.0,
+            },
+        );
+        assert_eq!(
+            a.get(0, 0, 0),
+            Estimate {
+                value: Some(0.1),
+                coverage: 0.5
+            }
+        );
     }
 
     #[test]
@@ -574,9 +754,19 @@ mod tests {
                 row("R", Some("R"), 1.0, Some(1.0)),
             ],
         };
-        let plan = Plan::new(&cw, &[], |c| if c.starts_with('O') { Origin::Carried } else { Origin::Direct });
+        let plan = Plan::new(&cw, &[], |c| {
+            if c.starts_with('O') {
+                Origin::Carried
+            } else {
+                Origin::Direct
+            }
+        });
         let mut v = SourceValues::new(3, plan.sources.len(), 1);
-        let (o1, o2, r) = (plan.source_index("O1").unwrap(), plan.source_index("O2").unwrap(), plan.source_index("R").unwrap());
+        let (o1, o2, r) = (
+            plan.source_index("O1").unwrap(),
+            plan.source_index("O2").unwrap(),
+            plan.source_index("R").unwrap(),
+        );
         // Period 0: old codes only, O2 missing. Period 1: new code only.
         // Period 2: both (the same land twice).
         v.add(0, o1, 0, 10.0);
@@ -584,44 +774,87 @@ mod tests {
         v.add(2, r, 0, 7.0);
         v.add(2, o1, 0, 10.0);
         v.add(2, o2, 0, 10.0);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Count(0)],
+                min_coverage: 0.0,
+            },
+        );
         // Period 0: only the carried origin is present: 0.5 / (0.5 + 0.5) = 0.5; value 10 * 0.4 = 4.
-        assert_eq!(a.get(0, 0, 0), Estimate { value: Some(4.0), coverage: 0.5 });
+        assert_eq!(
+            a.get(0, 0, 0),
+            Estimate {
+                value: Some(4.0),
+                coverage: 0.5
+            }
+        );
         // Period 1: only the direct origin: 1 / 1.
-        assert_eq!(a.get(0, 1, 0), Estimate { value: Some(7.0), coverage: 1.0 });
+        assert_eq!(
+            a.get(0, 1, 0),
+            Estimate {
+                value: Some(7.0),
+                coverage: 1.0
+            }
+        );
         // Period 2: shares add to 2 > 1: reported as an overlap.
         assert_eq!(a.overlaps, vec![(0, 2)]);
     }
 
     #[test]
     fn the_uncovered_share_is_not_allocated() {
-        let cw = Crosswalk { rows: vec![row("A", Some("X"), 0.9, Some(1.0)), row("A", None, 0.1, None)] };
+        let cw = Crosswalk {
+            rows: vec![
+                row("A", Some("X"), 0.9, Some(1.0)),
+                row("A", None, 0.1, None),
+            ],
+        };
         let plan = Plan::new(&cw, &["W".to_string()], direct);
         assert_eq!(plan.targets, ["W", "X"]);
         let v = values(&[("A", &[Some(50.0)])], &plan);
-        let a = allocate(&plan, &v, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+        let a = allocate(
+            &plan,
+            &v,
+            &Spec {
+                measures: vec![Measure::Count(0)],
+                min_coverage: 0.0,
+            },
+        );
         // 50 * 0.9 = 45 lands in X; the 5 outside every target is not allocated.
         assert_eq!(a.get(1, 0, 0).value, Some(45.0));
         // W, a target with no source at all, is written with coverage 0.
-        assert_eq!(a.get(0, 0, 0), Estimate { value: None, coverage: 0.0 });
+        assert_eq!(
+            a.get(0, 0, 0),
+            Estimate {
+                value: None,
+                coverage: 0.0
+            }
+        );
     }
 
     /// A random crosswalk: each source spreads weight 1 over some targets.
     fn crosswalk_strategy() -> impl Strategy<Value = Crosswalk> {
-        prop::collection::vec(prop::collection::vec((0usize..5, 0.01f64..1.0), 1..4), 1..8).prop_map(|sources| {
-            let mut rows = Vec::new();
-            for (s, pieces) in sources.iter().enumerate() {
-                let mut by_target = std::collections::BTreeMap::new();
-                for (t, w) in pieces {
-                    *by_target.entry(*t).or_insert(0.0) += w;
+        prop::collection::vec(prop::collection::vec((0usize..5, 0.01f64..1.0), 1..4), 1..8)
+            .prop_map(|sources| {
+                let mut rows = Vec::new();
+                for (s, pieces) in sources.iter().enumerate() {
+                    let mut by_target = std::collections::BTreeMap::new();
+                    for (t, w) in pieces {
+                        *by_target.entry(*t).or_insert(0.0) += w;
+                    }
+                    let total: f64 = by_target.values().sum();
+                    for (t, w) in by_target {
+                        rows.push(row(
+                            &format!("S{s}"),
+                            Some(&format!("T{t}")),
+                            w / total,
+                            Some(0.3),
+                        ));
+                    }
                 }
-                let total: f64 = by_target.values().sum();
-                for (t, w) in by_target {
-                    rows.push(row(&format!("S{s}"), Some(&format!("T{t}")), w / total, Some(0.3)));
-                }
-            }
-            Crosswalk { rows }
-        })
+                Crosswalk { rows }
+            })
     }
 
     proptest! {
@@ -634,8 +867,8 @@ mod tests {
             let mut v = SourceValues::new(1, plan.sources.len(), 1);
             let mut expected = 0.0;
             let mut scale = 0.0;
-            for s in 0..plan.sources.len() {
-                if let Some(x) = raw[s] {
+            for (s, x) in raw.iter().take(plan.sources.len()).enumerate() {
+                if let Some(x) = *x {
                     v.add(0, s, 0, x);
                     expected += x;
                     scale += x.abs();

@@ -11,15 +11,15 @@
 //! still add up to one.
 //!
 //! **Target shares.** With `|a ∩ b|` the measure (area or population) of an
-//! intersection, `target_share(x, y) = |x ∩ y| / |y|` and `target_share(y,
-//! z) = |y ∩ z| / |z|`. The piece of z made of x is `sum over y of |x ∩ y ∩
-//! z|`, which the two tables do not give. Assuming, as allocation itself
-//! does, that x's part of y is spread evenly over y, `|x ∩ y ∩ z| = |x ∩ y|
-//! * |y ∩ z| / |y|`, so `target_share(x, z) = sum over y of target_share(x,
-//! y) * target_share(y, z)`. It is exact whenever each y lies wholly inside
-//! one x or wholly inside one z (then one of the two ratios is the whole
-//! of y). When either table lacks a target share on a path, the composed
-//! row has none.
+//! intersection, `target_share(x, y) = |x ∩ y| / |y|` and
+//! `target_share(y, z) = |y ∩ z| / |z|`. The piece of z made of x is
+//! `sum over y of |x ∩ y ∩ z|`, which the two tables do not give. Assuming,
+//! as allocation itself does, that x's part of y is spread evenly over y,
+//! `|x ∩ y ∩ z| = |x ∩ y| · |y ∩ z| / |y|`, so
+//! `target_share(x, z) = sum over y of target_share(x, y) · target_share(y, z)`.
+//! It is exact whenever each y lies wholly inside one x or wholly inside one
+//! z (then one of the two ratios is the whole of y). When either table lacks
+//! a target share on a path, the composed row has none.
 //!
 //! **Basis.** The composed row takes the basis of the first table's row,
 //! unless that is `history` (one to one), in which case it takes the
@@ -40,7 +40,9 @@ pub const WEIGHT_SLACK: f64 = 1e-6;
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ChainError {
     /// A (source, target) pair appears on more than one row.
-    #[error("{table}: the pair {from} -> {to} appears on more than one row; each pair must appear once")]
+    #[error(
+        "{table}: the pair {from} -> {to} appears on more than one row; each pair must appear once"
+    )]
     Duplicate {
         /// Which table ("first" or "second").
         table: &'static str,
@@ -89,20 +91,38 @@ pub fn check(table: &'static str, crosswalk: &Crosswalk) -> Result<(), ChainErro
     for r in &crosswalk.rows {
         let to = r.to_code.clone().unwrap_or_default();
         if !seen.insert((r.from_code.as_str(), r.to_code.as_deref())) {
-            return Err(ChainError::Duplicate { table, from: r.from_code.clone(), to });
+            return Err(ChainError::Duplicate {
+                table,
+                from: r.from_code.clone(),
+                to,
+            });
         }
         if !(0.0..=1.0 + WEIGHT_SLACK).contains(&r.weight) {
-            return Err(ChainError::BadWeight { table, from: r.from_code.clone(), to, weight: r.weight });
+            return Err(ChainError::BadWeight {
+                table,
+                from: r.from_code.clone(),
+                to,
+                weight: r.weight,
+            });
         }
         *totals.entry(r.from_code.as_str()).or_insert(0.0) += r.weight;
     }
     for (from, total) in totals {
         if (total - 1.0).abs() > WEIGHT_SLACK {
-            return Err(ChainError::Unbalanced { table, from: from.to_string(), total });
+            return Err(ChainError::Unbalanced {
+                table,
+                from: from.to_string(),
+                total,
+            });
         }
     }
     Ok(())
 }
+
+/// A (source, target) pair; no target for the uncovered share.
+type Pair<'a> = (&'a str, Option<&'a str>);
+/// Weight, target share (if every path has one) and basis of a composed row.
+type Composed = (f64, Option<f64>, Basis);
 
 /// Composes `first` (x->y) and `second` (y->z) into x->z, sorted. Both are
 /// checked first; every target of `first` must be a source of `second`.
@@ -122,10 +142,13 @@ pub fn compose(first: &Crosswalk, second: &Crosswalk) -> Result<Crosswalk, Chain
     if !unlinked.is_empty() {
         let listed: Vec<&str> = unlinked.iter().take(10).copied().collect();
         let more = if unlinked.len() > 10 { ", ..." } else { "" };
-        return Err(ChainError::Unlinked { count: unlinked.len(), listed: format!("{}{more}", listed.join(", ")) });
+        return Err(ChainError::Unlinked {
+            count: unlinked.len(),
+            listed: format!("{}{more}", listed.join(", ")),
+        });
     }
     // (x, z or None) -> (weight, target share if every path has one, basis)
-    let mut out: BTreeMap<(&str, Option<&str>), (f64, Option<f64>, Basis)> = BTreeMap::new();
+    let mut out: BTreeMap<Pair, Composed> = BTreeMap::new();
     for a in &first.rows {
         let x = a.from_code.as_str();
         let Some(y) = a.to_code.as_deref() else {
@@ -135,7 +158,11 @@ pub fn compose(first: &Crosswalk, second: &Crosswalk) -> Result<Crosswalk, Chain
         };
         for b in &onward[y] {
             let z = b.to_code.as_deref();
-            let basis = if a.basis == Basis::History { b.basis } else { a.basis };
+            let basis = if a.basis == Basis::History {
+                b.basis
+            } else {
+                a.basis
+            };
             let share = match (z, a.target_share, b.target_share) {
                 (Some(_), Some(s1), Some(s2)) => Some(s1 * s2),
                 _ => None,
@@ -179,7 +206,10 @@ mod tests {
     }
 
     fn find<'a>(cw: &'a Crosswalk, from: &str, to: Option<&str>) -> &'a CrosswalkRow {
-        cw.rows.iter().find(|r| r.from_code == from && r.to_code.as_deref() == to).unwrap()
+        cw.rows
+            .iter()
+            .find(|r| r.from_code == from && r.to_code.as_deref() == to)
+            .unwrap()
     }
 
     /// A strip of land cut three ways (areas in hectares, hand-made):
@@ -203,10 +233,10 @@ mod tests {
         };
         let yz = Crosswalk {
             rows: vec![
-                row("Y1", Some("Z1"), 1.0, Some(0.6)),  // 3/3, 3/5
-                row("Y2", Some("Z1"), 0.4, Some(0.4)),  // [3,5) = 2: 2/5, 2/5
-                row("Y2", Some("Z2"), 0.6, Some(0.6)),  // [5,8) = 3: 3/5, 3/5
-                row("Y3", Some("Z2"), 1.0, Some(0.4)),  // 2/2, 2/5
+                row("Y1", Some("Z1"), 1.0, Some(0.6)), // 3/3, 3/5
+                row("Y2", Some("Z1"), 0.4, Some(0.4)), // [3,5) = 2: 2/5, 2/5
+                row("Y2", Some("Z2"), 0.6, Some(0.6)), // [5,8) = 3: 3/5, 3/5
+                row("Y3", Some("Z2"), 1.0, Some(0.4)), // 2/2, 2/5
             ],
         };
         (xy, yz)
@@ -270,28 +300,65 @@ mod tests {
     #[test]
     fn uncovered_shares_carry_through_both_steps() {
         // X: 0.8 into Y, 0.2 outside every y. Y: 0.75 into Z, 0.25 outside every z.
-        let xy = Crosswalk { rows: vec![row("X", Some("Y"), 0.8, Some(1.0)), row("X", None, 0.2, None)] };
-        let yz = Crosswalk { rows: vec![row("Y", Some("Z"), 0.75, Some(1.0)), row("Y", None, 0.25, None)] };
+        let xy = Crosswalk {
+            rows: vec![
+                row("X", Some("Y"), 0.8, Some(1.0)),
+                row("X", None, 0.2, None),
+            ],
+        };
+        let yz = Crosswalk {
+            rows: vec![
+                row("Y", Some("Z"), 0.75, Some(1.0)),
+                row("Y", None, 0.25, None),
+            ],
+        };
         let xz = compose(&xy, &yz).unwrap();
         // X -> Z = 0.8 * 0.75 = 0.6; uncovered = 0.2 + 0.8 * 0.25 = 0.4.
         assert!((find(&xz, "X", Some("Z")).weight - 0.6).abs() < 1e-12);
         assert!((find(&xz, "X", None).weight - 0.4).abs() < 1e-12);
-        assert_eq!(xz.rows.last().unwrap().to_code, None, "the uncovered row comes last");
+        assert_eq!(
+            xz.rows.last().unwrap().to_code,
+            None,
+            "the uncovered row comes last"
+        );
     }
 
     #[test]
     fn a_target_missing_from_the_second_table_is_named() {
-        let xy = Crosswalk { rows: vec![row("X", Some("Y9"), 1.0, None)] };
-        let yz = Crosswalk { rows: vec![row("Y1", Some("Z"), 1.0, None)] };
+        let xy = Crosswalk {
+            rows: vec![row("X", Some("Y9"), 1.0, None)],
+        };
+        let yz = Crosswalk {
+            rows: vec![row("Y1", Some("Z"), 1.0, None)],
+        };
         let e = compose(&xy, &yz).unwrap_err();
-        assert_eq!(e, ChainError::Unlinked { count: 1, listed: "Y9".into() });
+        assert_eq!(
+            e,
+            ChainError::Unlinked {
+                count: 1,
+                listed: "Y9".into()
+            }
+        );
     }
 
     #[test]
     fn unbalanced_weights_and_duplicate_pairs_are_refused() {
-        let bad = Crosswalk { rows: vec![row("X", Some("Y"), 0.7, None)] };
-        assert!(matches!(check("first", &bad), Err(ChainError::Unbalanced { .. })));
-        let dup = Crosswalk { rows: vec![row("X", Some("Y"), 0.5, None), row("X", Some("Y"), 0.5, None)] };
-        assert!(matches!(check("first", &dup), Err(ChainError::Duplicate { .. })));
+        let bad = Crosswalk {
+            rows: vec![row("X", Some("Y"), 0.7, None)],
+        };
+        assert!(matches!(
+            check("first", &bad),
+            Err(ChainError::Unbalanced { .. })
+        ));
+        let dup = Crosswalk {
+            rows: vec![
+                row("X", Some("Y"), 0.5, None),
+                row("X", Some("Y"), 0.5, None),
+            ],
+        };
+        assert!(matches!(
+            check("first", &dup),
+            Err(ChainError::Duplicate { .. })
+        ));
     }
 }

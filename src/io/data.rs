@@ -17,10 +17,10 @@ use polars::prelude::*;
 use rayon::prelude::*;
 
 use crate::core::allocate::{Allocation, Plan, SourceValues};
-use std::ops::Range;
 use crate::error::{Error, Location, Result};
 use crate::io::output::fixed;
 use crate::io::table::{detect_delimiter, is_parquet};
+use std::ops::Range;
 
 /// Which columns to read and how.
 #[derive(Debug, Clone)]
@@ -46,12 +46,13 @@ pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
     let path = &spec.path;
     let mut head = [0u8; 4];
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
-    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
+    let n = std::io::Read::read(&mut &file, &mut head)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
     if is_parquet(path, &head[..n]) {
         let mut reader = ParquetReader::new(file);
-        let schema = reader
-            .schema()
-            .map_err(|e| Error::input(Location::file(path), format!("cannot read as Parquet: {e}")))?;
+        let schema = reader.schema().map_err(|e| {
+            Error::input(Location::file(path), format!("cannot read as Parquet: {e}"))
+        })?;
         return Ok(schema.iter_names().map(|n| n.to_string()).collect());
     }
     let line = first_line(path)?;
@@ -63,16 +64,28 @@ fn first_line(path: &Path) -> Result<String> {
     use std::io::BufRead;
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
     let mut line = String::new();
-    std::io::BufReader::new(file).read_line(&mut line).map_err(|e| Error::io(path, "cannot read", e))?;
-    let line = line.strip_prefix('\u{feff}').unwrap_or(&line).trim_end_matches(['\r', '\n']).to_string();
+    std::io::BufReader::new(file)
+        .read_line(&mut line)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
+    let line = line
+        .strip_prefix('\u{feff}')
+        .unwrap_or(&line)
+        .trim_end_matches(['\r', '\n'])
+        .to_string();
     if line.trim().is_empty() {
-        return Err(Error::input(Location::file(path), "the file is empty; expected a header line and rows"));
+        return Err(Error::input(
+            Location::file(path),
+            "the file is empty; expected a header line and rows",
+        ));
     }
     Ok(line)
 }
 
 fn split_header(line: &str, sep: u8) -> Vec<String> {
-    let mut reader = csv::ReaderBuilder::new().delimiter(sep).has_headers(false).from_reader(line.as_bytes());
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(sep)
+        .has_headers(false)
+        .from_reader(line.as_bytes());
     reader
         .records()
         .next()
@@ -84,10 +97,14 @@ fn split_header(line: &str, sep: u8) -> Vec<String> {
 /// Checks that every column `spec` names is present, before reading rows.
 pub fn check_columns(spec: &DataSpec) -> Result<()> {
     let names = column_names(spec)?;
-    let wanted = [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-        .into_iter()
-        .flatten()
-        .chain(&spec.value_columns);
+    let wanted = [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    .chain(&spec.value_columns);
     for w in wanted {
         if !names.iter().any(|n| n == w) {
             return Err(Error::MissingColumn {
@@ -124,14 +141,22 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     let path = &spec.path;
     let mut head = [0u8; 4];
     let file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
-    let n = std::io::Read::read(&mut &file, &mut head).map_err(|e| Error::io(path, "cannot read", e))?;
-    let text_columns: Vec<&String> =
-        [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-            .into_iter()
-            .flatten()
-            .collect();
+    let n = std::io::Read::read(&mut &file, &mut head)
+        .map_err(|e| Error::io(path, "cannot read", e))?;
+    let text_columns: Vec<&String> = [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     let df = if is_parquet(path, &head[..n]) {
-        let all: Vec<String> = text_columns.iter().map(|s| s.to_string()).chain(spec.value_columns.clone()).collect();
+        let all: Vec<String> = text_columns
+            .iter()
+            .map(|s| s.to_string())
+            .chain(spec.value_columns.clone())
+            .collect();
         let df = ParquetReader::new(file)
             .with_columns(Some(all))
             .finish()
@@ -139,7 +164,10 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         let mut columns = Vec::new();
         for name in &text_columns {
             let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(c.cast(&DataType::String).map_err(|e| polars_error(path, e))?);
+            columns.push(
+                c.cast(&DataType::String)
+                    .map_err(|e| polars_error(path, e))?,
+            );
         }
         for name in &spec.value_columns {
             let c = df.column(name).map_err(|e| polars_error(path, e))?;
@@ -147,15 +175,21 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         }
         DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
     } else {
-        let sep = spec.separator.unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
+        let sep = spec
+            .separator
+            .unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
         match read_csv(spec, sep, &DataType::Float64) {
             Ok(df) => df,
             // A value polars cannot read as a number: read the values as
             // text to find where, and say so.
             Err(fast) => {
-                let df = read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
-                let mut columns: Vec<Column> =
-                    text_columns.iter().map(|n| df.column(n).cloned()).collect::<PolarsResult<_>>().map_err(|e| polars_error(path, e))?;
+                let df =
+                    read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
+                let mut columns: Vec<Column> = text_columns
+                    .iter()
+                    .map(|n| df.column(n).cloned())
+                    .collect::<PolarsResult<_>>()
+                    .map_err(|e| polars_error(path, e))?;
                 for name in &spec.value_columns {
                     let c = df.column(name).map_err(|e| polars_error(path, e))?;
                     columns.push(to_numbers(path, name, c)?);
@@ -167,12 +201,19 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     };
     let text = |name: &String| -> Result<StringChunked> {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        Ok(c.str().map_err(|e| polars_error(path, e))?.rechunk().into_owned())
+        Ok(c.str()
+            .map_err(|e| polars_error(path, e))?
+            .rechunk()
+            .into_owned())
     };
     let mut values = Vec::new();
     for name in &spec.value_columns {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        let ca = c.f64().map_err(|e| polars_error(path, e))?.rechunk().into_owned();
+        let ca = c
+            .f64()
+            .map_err(|e| polars_error(path, e))?
+            .rechunk()
+            .into_owned();
         // Infinite or NaN values (written "inf", "NaN") are not data.
         if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
             return Err(Error::input(
@@ -196,9 +237,13 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
 fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<DataFrame> {
     let mut fields: Vec<Field> = Vec::new();
     let mut names: Vec<PlSmallStr> = Vec::new();
-    for name in [Some(&spec.code_column), spec.state_column.as_ref(), spec.period_column.as_ref()]
-        .into_iter()
-        .flatten()
+    for name in [
+        Some(&spec.code_column),
+        spec.state_column.as_ref(),
+        spec.period_column.as_ref(),
+    ]
+    .into_iter()
+    .flatten()
     {
         fields.push(Field::new(name.as_str().into(), DataType::String));
         names.push(name.as_str().into());
@@ -226,9 +271,13 @@ fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<Dat
 /// error naming its line and column. Surrounding spaces are allowed.
 fn to_numbers(path: &Path, name: &str, column: &Column) -> Result<Column> {
     if column.dtype().is_primitive_numeric() {
-        return column.cast(&DataType::Float64).map_err(|e| polars_error(path, e));
+        return column
+            .cast(&DataType::Float64)
+            .map_err(|e| polars_error(path, e));
     }
-    let text = column.cast(&DataType::String).map_err(|e| polars_error(path, e))?;
+    let text = column
+        .cast(&DataType::String)
+        .map_err(|e| polars_error(path, e))?;
     let text = text.str().map_err(|e| polars_error(path, e))?;
     let mut out: Vec<Option<f64>> = Vec::with_capacity(text.len());
     for (i, v) in text.iter().enumerate() {
@@ -259,7 +308,11 @@ impl Hasher for Fnv {
         self.0
     }
     fn write(&mut self, bytes: &[u8]) {
-        let mut h = if self.0 == 0 { 0xcbf2_9ce4_8422_2325 } else { self.0 };
+        let mut h = if self.0 == 0 {
+            0xcbf2_9ce4_8422_2325
+        } else {
+            self.0
+        };
         for b in bytes {
             h ^= *b as u64;
             h = h.wrapping_mul(0x0100_0000_01b3);
@@ -311,7 +364,7 @@ impl DataTable {
         let mut last: Option<((Option<&str>, &str), u32)> = None;
         let states: Box<dyn Iterator<Item = Option<&str>>> = match &self.states {
             Some(s) => Box::new(s.iter()),
-            None => Box::new(std::iter::repeat(Some("")).take(n)),
+            None => Box::new(std::iter::repeat_n(Some(""), n)),
         };
         for (i, (code, state)) in self.codes.iter().zip(states).enumerate() {
             let line = i as u64 + 2;
@@ -327,7 +380,10 @@ impl DataTable {
             let id = match last {
                 Some((k, id)) if k == key => id,
                 _ => *code_ids.entry(key).or_insert_with(|| {
-                    codes.push(RawCode { state: key.0.map(String::from), code: code.to_string() });
+                    codes.push(RawCode {
+                        state: key.0.map(String::from),
+                        code: code.to_string(),
+                    });
                     code_rows.push((0, line));
                     (codes.len() - 1) as u32
                 }),
@@ -368,7 +424,8 @@ impl DataTable {
                 }
                 // Sort periods (numerically when all are integers) and renumber.
                 let mut order: Vec<u32> = (0..periods.len() as u32).collect();
-                let numeric: Option<Vec<i64>> = periods.iter().map(|p| p.parse::<i64>().ok()).collect();
+                let numeric: Option<Vec<i64>> =
+                    periods.iter().map(|p| p.parse::<i64>().ok()).collect();
                 match &numeric {
                     Some(nums) => order.sort_by_key(|&i| nums[i as usize]),
                     None => order.sort_by(|&a, &b| periods[a as usize].cmp(&periods[b as usize])),
@@ -383,7 +440,15 @@ impl DataTable {
                 periods = order.iter().map(|&i| periods[i as usize].clone()).collect();
             }
         }
-        Indexed { codes, code_rows, periods, row_code, row_period, missing_code, missing_period }
+        Indexed {
+            codes,
+            code_rows,
+            periods,
+            row_code,
+            row_period,
+            missing_code,
+            missing_period,
+        }
     }
 
     /// Adds each row's values into the cell of its source and period.
@@ -392,7 +457,7 @@ impl DataTable {
     pub fn fold(&self, indexed: &Indexed, source_of: &[Option<u32>], sources: usize) -> Folded {
         let periods = indexed.periods.len();
         let columns = self.values.len();
-        let mut values = SourceValues::new(periods, sources, columns);
+        let mut by_period = vec![f64::NAN; periods * sources * columns];
         let mut rows = vec![0u32; periods * sources];
         let mut first = vec![0u32; periods * sources];
         // Each row's cell, or NONE when its code or period is missing or
@@ -400,7 +465,11 @@ impl DataTable {
         let mut cells: Vec<u32> = Vec::with_capacity(self.rows);
         for i in 0..self.rows {
             let (c, p) = (indexed.row_code[i], indexed.row_period[i]);
-            let source = if c == NONE || p == NONE { None } else { source_of[c as usize] };
+            let source = if c == NONE || p == NONE {
+                None
+            } else {
+                source_of[c as usize]
+            };
             let Some(s) = source else {
                 cells.push(NONE);
                 continue;
@@ -415,12 +484,18 @@ impl DataTable {
         for (col, ca) in self.values.iter().enumerate() {
             for (v, &cell) in ca.iter().zip(&cells) {
                 if let (Some(v), true) = (v, cell != NONE) {
-                    let cell = cell as usize;
-                    values.add(cell / sources, cell % sources, col, v);
+                    let x = &mut by_period[cell as usize * columns + col];
+                    *x = if x.is_nan() { v } else { *x + v };
                 }
             }
         }
-        Folded { values, rows, first_row: first, sources }
+        let values = SourceValues::from_period_major(periods, sources, columns, &by_period);
+        Folded {
+            values,
+            rows,
+            first_row: first,
+            sources,
+        }
     }
 }
 
@@ -489,7 +564,15 @@ pub fn write_results(
             header.push(col.clone());
         }
     }
-    writeln!(w, "{}", header.iter().map(|h| csv_field(h)).collect::<Vec<_>>().join(","))?;
+    writeln!(
+        w,
+        "{}",
+        header
+            .iter()
+            .map(|h| csv_field(h))
+            .collect::<Vec<_>>()
+            .join(",")
+    )?;
     let targets = plan.targets.len();
     // A few targets per buffer, a few buffers per batch: bounded memory,
     // both cores busy.
@@ -497,7 +580,9 @@ pub fn write_results(
     const CHUNK_PER_BATCH: usize = 32;
     let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
     for batch in chunks.chunks(CHUNK_PER_BATCH) {
-        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else { continue };
+        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else {
+            continue;
+        };
         let allocation = allocate(first * chunk..((last + 1) * chunk).min(targets));
         let buffers: Vec<Vec<u8>> = batch
             .par_iter()
@@ -608,17 +693,23 @@ pub fn number_or_empty(value: Option<f64>, decimals: usize) -> String {
 /// SHA-256 of a file, as lowercase hex.
 pub fn sha256_file(path: &Path) -> Result<String> {
     use sha2::{Digest, Sha256};
-    let mut file = std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+    let mut file =
+        std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
     loop {
-        let n = std::io::Read::read(&mut file, &mut buf).map_err(|e| Error::io(path, "cannot read", e))?;
+        let n = std::io::Read::read(&mut file, &mut buf)
+            .map_err(|e| Error::io(path, "cannot read", e))?;
         if n == 0 {
             break;
         }
         hasher.update(&buf[..n]);
     }
-    Ok(hasher.finalize().iter().map(|b| format!("{b:02x}")).collect())
+    Ok(hasher
+        .finalize()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect())
 }
 
 #[cfg(test)]
@@ -627,11 +718,18 @@ mod tests {
 
     #[test]
     fn fixed_decimals_in_a_buffer_match_the_shared_formatter() {
-        for v in [0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5, 2.5, 0.0000005, -7.0, 0.125, 1e300] {
+        for v in [
+            0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5, 2.5, 0.0000005, -7.0,
+            0.125, 1e300,
+        ] {
             for d in [0, 1, 3, 6, 9, 12] {
                 let mut buf = b"x,".to_vec();
                 push_fixed(&mut buf, v, d);
-                assert_eq!(String::from_utf8(buf).unwrap(), format!("x,{}", fixed(v, d)), "{v} {d}");
+                assert_eq!(
+                    String::from_utf8(buf).unwrap(),
+                    format!("x,{}", fixed(v, d)),
+                    "{v} {d}"
+                );
             }
         }
     }
