@@ -19,6 +19,9 @@ fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
     p
 }
 
+/// A CSV row: column -> text.
+type Row = BTreeMap<String, String>;
+
 /// Reads a CSV into rows of (column -> text).
 fn read_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
     let mut r = csv::Reader::from_path(path).unwrap();
@@ -349,13 +352,7 @@ fn the_same_inputs_give_the_same_bytes() {
 
 /// Runs apply on the unemployment file carried to the 2023 counties and
 /// returns (results, report).
-fn unemployment_to_2023(
-    extra: &[&str],
-) -> (
-    Vec<BTreeMap<String, String>>,
-    Vec<BTreeMap<String, String>>,
-    serde_json::Value,
-) {
+fn unemployment_to_2023(extra: &[&str]) -> (Vec<Row>, Vec<Row>, serde_json::Value) {
     let dir = tempfile::tempdir().unwrap();
     let fixture = Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/apply/unemployment.tsv");
     let out = dir.path().join("out.csv");
@@ -499,4 +496,77 @@ fn the_unemployment_file_is_carried_onto_2023_counties_through_the_history() {
         meta["counts"]["rows_allocated"].as_u64().unwrap() + left_out,
         3218
     );
+}
+
+#[test]
+fn a_table_whose_periods_use_two_vintages_is_harmonized_in_one_call() {
+    // Connecticut: 2020 on the old counties, 2022 on the planning regions.
+    // Weights for Fairfield (09001) rounded from the change table's notes
+    // ("about 22% of the county and 98% of the region", ...); those for New
+    // Haven (09009) made up by hand.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "ct.csv",
+        "from_code,to_code,weight,target_share,basis
+09001,09120,0.22,0.98,area
+09001,09140,0.06,0.08,area
+09001,09190,0.72,0.85,area
+09009,09140,0.6,0.5,area
+09009,09170,0.4,1.0,area
+",
+    );
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "year,code,n\n2020,9001,1000\n2022,09120,300\n2022,09140,200\n2022,09190,700\n",
+    );
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    regionkey()
+        .args([
+            "apply",
+            data.to_str().unwrap(),
+            "--to-vintage",
+            "2023",
+            "-c",
+            cw.to_str().unwrap(),
+        ])
+        .args([
+            "--period-column",
+            "year",
+            "--sum",
+            "n",
+            "-q",
+            "-o",
+            out.to_str().unwrap(),
+        ])
+        .args(["--report", report.to_str().unwrap()])
+        .assert()
+        .success();
+    let rows = read_rows(&out);
+    // 2020, Greater Bridgeport (09120): 1000 * 0.22 = 220; its only old-vintage
+    // source in the table is 09001 (share 0.98 of 0.98): coverage 1.
+    let r = find(&rows, "09120", Some("2020"));
+    assert_eq!((num(r, "n"), num(r, "n_coverage")), (220.0, 1.0));
+    // 2020, Naugatuck Valley (09140): 1000 * 0.06 = 60; 09009 (share 0.5) has no
+    // data: coverage 0.08 / (0.08 + 0.5) = 0.137931.
+    let r = find(&rows, "09140", Some("2020"));
+    assert_eq!(num(r, "n"), 60.0);
+    assert_eq!(r["n_coverage"], "0.137931");
+    // 2020, South Central (09170): made only of 09009, absent: empty, coverage 0.
+    let r = find(&rows, "09170", Some("2020"));
+    assert_eq!((r["n"].as_str(), num(r, "n_coverage")), ("", 0.0));
+    // 2022 on the regions themselves: carried as they are, coverage 1.
+    let r = find(&rows, "09140", Some("2022"));
+    assert_eq!((num(r, "n"), num(r, "n_coverage")), (200.0, 1.0));
+    // A county outside Connecticut has no data in either year.
+    assert_eq!(num(find(&rows, "01001", Some("2022")), "n_coverage"), 0.0);
+    let report = read_rows(&report);
+    assert!(report
+        .iter()
+        .any(|r| r["kind"] == "from-crosswalk" && r["code"] == "09001"));
+    assert!(report
+        .iter()
+        .any(|r| r["kind"] == "absent-source" && r["code"] == "09009" && r["period"].is_empty()));
 }

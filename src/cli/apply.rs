@@ -17,7 +17,7 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 use super::{say, warn, Global};
-use crate::core::allocate::{allocate, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
+use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::fips::{CountyFips, StateFips};
@@ -573,12 +573,49 @@ fn carry_codes(
             }
             Carried::Unknown => out.findings.push(finding(
                 "unknown-code",
-                format!(
-                    "not a county code of any vintage in the built-in reference; rows left out"
-                ),
+                "not a county code of any vintage in the built-in reference; rows left out"
+                    .to_string(),
             )),
         }
     }
+    // The other pieces of the targets that weighted rows reach: sources of
+    // the weight tables with no row in the data. They join the plan as
+    // carried sources without values, so the coverage of those targets
+    // counts what is missing (a region made mostly of counties absent from
+    // the data is not fully covered).
+    let reached: BTreeSet<String> = out
+        .crosswalk
+        .rows
+        .iter()
+        .filter(|r| r.basis != Basis::History)
+        .filter_map(|r| r.to_code.clone())
+        .collect();
+    let present: BTreeSet<String> = out
+        .crosswalk
+        .rows
+        .iter()
+        .map(|r| r.from_code.clone())
+        .collect();
+    let mut extra: Vec<CrosswalkRow> = Vec::new();
+    let mut taken: BTreeSet<String> = BTreeSet::new();
+    for table in [user, if year == 2023 { shipped } else { None }]
+        .into_iter()
+        .flatten()
+    {
+        let wanted: BTreeSet<&str> = table
+            .rows
+            .iter()
+            .filter(|r| r.to_code.as_ref().is_some_and(|t| reached.contains(t)))
+            .map(|r| r.from_code.as_str())
+            .filter(|c| !present.contains(*c) && !taken.contains(*c))
+            .collect();
+        for code in wanted {
+            out.carried.insert(code.to_string());
+            extra.extend(rows_for(table, code).cloned());
+            taken.insert(code.to_string());
+        }
+    }
+    out.crosswalk.rows.extend(extra);
     out.crosswalk.sort();
     out
 }
@@ -855,18 +892,6 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         measures,
         min_coverage: args.min_coverage,
     };
-    let allocation = allocate(&plan, &folded.values, &spec);
-    for &(t, p) in &allocation.overlaps {
-        findings.push(Finding {
-            kind: "overlap",
-            code: plan.targets[t].clone(),
-            period: indexed.periods[p].clone(),
-            rows: 0,
-            first_line: None,
-            detail: "old and new codes of this unit both have values in this period; the same land is counted twice".into(),
-        });
-    }
-    findings.sort();
 
     // Write.
     let layout = ResultLayout {
@@ -890,9 +915,35 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         target_names: extra_names,
         decimals: args.decimals,
     };
+    let mut coverage = vec![(0u64, 0u64, 0u64, 0u64); spec.measures.len()];
+    let mut overlaps: Vec<(usize, usize)> = Vec::new();
+    let run_allocation =
+        |targets: std::ops::Range<usize>| allocate_range(&plan, &folded.values, &spec, targets);
+    let mut seen = |a: &Allocation| {
+        add_coverage(&mut coverage, a);
+        overlaps.extend(a.overlaps.iter().copied());
+    };
     write_to(&config.output, |w| {
-        data::write_results(w, &plan, &indexed.periods, &allocation, &layout)
+        data::write_results(
+            w,
+            &plan,
+            &indexed.periods,
+            &run_allocation,
+            &mut seen,
+            &layout,
+        )
     })?;
+    for &(t, p) in &overlaps {
+        findings.push(Finding {
+            kind: "overlap",
+            code: plan.targets[t].clone(),
+            period: indexed.periods[p].clone(),
+            rows: 0,
+            first_line: None,
+            detail: "old and new codes of this unit both have values in this period; the same land is counted twice".into(),
+        });
+    }
+    findings.sort();
     if let Some(report) = &config.report {
         write_file(report, |w| write_report(w, &findings))?;
     }
@@ -912,7 +963,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         carried,
         duplicates,
         counts,
-        coverage: coverage_summary(&allocation, plan.targets.len(), indexed.periods.len()),
+        coverage,
     };
     if let Target::File(path) = &config.output {
         let sidecar = sidecar_path(path);
@@ -946,26 +997,22 @@ fn count_findings(findings: &[Finding]) -> BTreeMap<&'static str, (u64, u64)> {
     out
 }
 
-fn coverage_summary(a: &Allocation, targets: usize, periods: usize) -> Vec<(u64, u64, u64, u64)> {
-    (0..a.measures)
-        .map(|m| {
-            let mut c = (0, 0, 0, 0);
-            for t in 0..targets {
-                for p in 0..periods {
-                    let e = a.get(t, p, m);
-                    c.0 += 1;
-                    if e.coverage >= 1.0 - 1e-9 {
-                        c.1 += 1;
-                    } else if e.coverage > 0.0 {
-                        c.2 += 1;
-                    } else {
-                        c.3 += 1;
-                    }
+fn add_coverage(c: &mut [(u64, u64, u64, u64)], a: &Allocation) {
+    for (m, c) in c.iter_mut().enumerate() {
+        for t in a.first_target..a.first_target + a.targets {
+            for p in 0..a.periods {
+                let e = a.get(t, p, m);
+                c.0 += 1;
+                if e.coverage >= 1.0 - 1e-9 {
+                    c.1 += 1;
+                } else if e.coverage > 0.0 {
+                    c.2 += 1;
+                } else {
+                    c.3 += 1;
                 }
             }
-            c
-        })
-        .collect()
+        }
+    }
 }
 
 fn print_summary(global: Global, config: &Config, s: &Summary) {

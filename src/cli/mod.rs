@@ -43,6 +43,7 @@ pub struct Cli {
 
 /// The subcommands.
 #[derive(Debug, Subcommand)]
+#[allow(clippy::large_enum_variant)] // parsed once; boxing would change every `run` signature
 pub enum Command {
     /// Match free-text place names to FIPS codes; write a crosswalk table and a review list.
     Match(match_names::Args),

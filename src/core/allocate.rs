@@ -160,7 +160,9 @@ impl Plan {
 }
 
 /// Values of the sources, by period and input column. A value is either a
-/// finite number or missing (absent from the data, or empty).
+/// finite number or missing (absent from the data, or empty). Held source
+/// by source, so the periods of one source lie together (allocation reads
+/// them in that order).
 #[derive(Debug, Clone)]
 pub struct SourceValues {
     periods: usize,
@@ -181,13 +183,45 @@ impl SourceValues {
         }
     }
 
+    /// From values laid out period by period (index
+    /// `(period · sources + source) · columns + column`, NaN for missing), as
+    /// rows of a table usually come; rearranged source by source in
+    /// cache-sized blocks.
+    pub fn from_period_major(
+        periods: usize,
+        sources: usize,
+        columns: usize,
+        by_period: &[f64],
+    ) -> SourceValues {
+        let mut v = SourceValues::new(periods, sources, columns);
+        const BLOCK: usize = 64;
+        for p0 in (0..periods).step_by(BLOCK) {
+            for s0 in (0..sources).step_by(BLOCK) {
+                for s in s0..(s0 + BLOCK).min(sources) {
+                    for p in p0..(p0 + BLOCK).min(periods) {
+                        let from = (p * sources + s) * columns;
+                        let to = (s * periods + p) * columns;
+                        v.values[to..to + columns]
+                            .copy_from_slice(&by_period[from..from + columns]);
+                    }
+                }
+            }
+        }
+        v
+    }
+
     /// Number of periods.
     pub fn periods(&self) -> usize {
         self.periods
     }
 
+    /// Number of sources.
+    pub fn sources(&self) -> usize {
+        self.sources
+    }
+
     fn at(&self, period: usize, source: usize, column: usize) -> usize {
-        (period * self.sources + source) * self.columns + column
+        (source * self.periods + period) * self.columns + column
     }
 
     /// Adds `value` to the cell (a missing cell becomes `value`); adding is
@@ -259,9 +293,14 @@ pub struct Estimate {
     pub coverage: f64,
 }
 
-/// The result: an estimate per (target, period, measure).
+/// The result: an estimate per (target, period, measure), for a range of
+/// targets.
 #[derive(Debug, Clone)]
 pub struct Allocation {
+    /// The first target covered (targets are indices into [`Plan::targets`]).
+    pub first_target: usize,
+    /// Number of targets covered.
+    pub targets: usize,
     /// Number of periods.
     pub periods: usize,
     /// Number of measures.
@@ -277,12 +316,13 @@ pub struct Allocation {
 impl Allocation {
     /// The estimate for a target, period and measure (indices).
     pub fn get(&self, target: usize, period: usize, measure: usize) -> Estimate {
-        self.estimates[(target * self.periods + period) * self.measures + measure]
+        self.estimates
+            [((target - self.first_target) * self.periods + period) * self.measures + measure]
     }
 
     /// The estimates of one target and period, one per measure.
     pub fn row(&self, target: usize, period: usize) -> &[Estimate] {
-        let i = (target * self.periods + period) * self.measures;
+        let i = ((target - self.first_target) * self.periods + period) * self.measures;
         &self.estimates[i..i + self.measures]
     }
 }
@@ -311,22 +351,45 @@ const SHARE_SLACK: f64 = 1e-6;
 /// Allocates `values` through `plan` as `spec` asks. Deterministic: each
 /// target is summed in source order, whatever the number of threads.
 pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
+    allocate_range(plan, values, spec, 0..plan.targets.len())
+}
+
+/// [`allocate`] for a range of targets only (so a large result can be
+/// computed and written a piece at a time).
+pub fn allocate_range(
+    plan: &Plan,
+    values: &SourceValues,
+    spec: &Spec,
+    targets: std::ops::Range<usize>,
+) -> Allocation {
     let periods = values.periods();
     let m = spec.measures.len();
-    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = (0..plan.targets.len())
+    let first_target = targets.start;
+    let count = targets.len();
+    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = targets
         .into_par_iter()
         .map(|t| {
             let links = plan.links_of(t);
+            // Sums for every (period, measure), filled link by link so each
+            // source's periods are read in order.
+            let mut sums = vec![Sums::default(); periods * m];
+            for l in links {
+                for p in 0..periods {
+                    for (k, measure) in spec.measures.iter().enumerate() {
+                        add_link(&mut sums[p * m + k], l, values, p, *measure);
+                    }
+                }
+            }
             let mut out = Vec::with_capacity(periods * m);
             let mut overlaps = Vec::new();
             for p in 0..periods {
                 let mut overlap = false;
-                for measure in &spec.measures {
-                    let sums = sum_links(links, values, p, *measure);
-                    if sums.active[0] && sums.active[1] && sums.known_share > 1.0 + SHARE_SLACK {
+                for (k, measure) in spec.measures.iter().enumerate() {
+                    let s = &sums[p * m + k];
+                    if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
                         overlap = true;
                     }
-                    out.push(finish(&sums, *measure, spec.min_coverage));
+                    out.push(finish(s, *measure, spec.min_coverage));
                 }
                 if overlap {
                     overlaps.push(p);
@@ -335,13 +398,15 @@ pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
             (out, overlaps)
         })
         .collect();
-    let mut estimates = Vec::with_capacity(plan.targets.len() * periods * m);
+    let mut estimates = Vec::with_capacity(count * periods * m);
     let mut overlaps = Vec::new();
-    for (t, (e, o)) in per_target.into_iter().enumerate() {
+    for (i, (e, o)) in per_target.into_iter().enumerate() {
         estimates.extend(e);
-        overlaps.extend(o.into_iter().map(|p| (t, p)));
+        overlaps.extend(o.into_iter().map(|p| (first_target + i, p)));
     }
     Allocation {
+        first_target,
+        targets: count,
         periods,
         measures: m,
         estimates,
@@ -349,54 +414,50 @@ pub fn allocate(plan: &Plan, values: &SourceValues, spec: &Spec) -> Allocation {
     }
 }
 
-fn sum_links(links: &[Link], values: &SourceValues, p: usize, measure: Measure) -> Sums {
-    let mut s = Sums::default();
-    for l in links {
-        let o = slot(l.origin);
-        let part = l.coverage_part();
-        s.total_part[o] += part;
-        let src = l.source as usize;
-        // (numerator, denominator) contributed by this link, if known.
-        let contribution = match measure {
-            Measure::Count(c) => values.get(p, src, c).map(|v| (v * l.weight, 0.0)),
-            Measure::Ratio {
-                numerator,
-                denominator,
-            } => {
-                match (
-                    values.get(p, src, numerator),
-                    values.get(p, src, denominator),
-                ) {
-                    (Some(n), Some(d)) => Some((n * l.weight, d * l.weight)),
-                    _ => None,
-                }
+fn add_link(s: &mut Sums, l: &Link, values: &SourceValues, p: usize, measure: Measure) {
+    let o = slot(l.origin);
+    let part = l.coverage_part();
+    s.total_part[o] += part;
+    let src = l.source as usize;
+    // (numerator, denominator) contributed by this link, if known.
+    let contribution = match measure {
+        Measure::Count(c) => values.get(p, src, c).map(|v| (v * l.weight, 0.0)),
+        Measure::Ratio {
+            numerator,
+            denominator,
+        } => {
+            match (
+                values.get(p, src, numerator),
+                values.get(p, src, denominator),
+            ) {
+                (Some(n), Some(d)) => Some((n * l.weight, d * l.weight)),
+                _ => None,
             }
-            Measure::Mean {
-                column,
-                weight: MeanWeight::Column(w),
-            } => match (values.get(p, src, column), values.get(p, src, w)) {
-                (Some(v), Some(wv)) => Some((v * wv * l.weight, wv * l.weight)),
-                _ => None,
-            },
-            // A piece with no target share cannot be weighted by it: it
-            // counts as not known for this measure.
-            Measure::Mean {
-                column,
-                weight: MeanWeight::TargetShare,
-            } => match (values.get(p, src, column), l.target_share) {
-                (Some(v), Some(ts)) => Some((v * ts, ts)),
-                _ => None,
-            },
-        };
-        if let Some((n, d)) = contribution {
-            s.numerator += n;
-            s.denominator += d;
-            s.known_part[o] += part;
-            s.active[o] = true;
-            s.known_share += l.target_share.unwrap_or(0.0);
         }
+        Measure::Mean {
+            column,
+            weight: MeanWeight::Column(w),
+        } => match (values.get(p, src, column), values.get(p, src, w)) {
+            (Some(v), Some(wv)) => Some((v * wv * l.weight, wv * l.weight)),
+            _ => None,
+        },
+        // A piece with no target share cannot be weighted by it: it
+        // counts as not known for this measure.
+        Measure::Mean {
+            column,
+            weight: MeanWeight::TargetShare,
+        } => match (values.get(p, src, column), l.target_share) {
+            (Some(v), Some(ts)) => Some((v * ts, ts)),
+            _ => None,
+        },
+    };
+    if let Some((n, d)) = contribution {
+        s.numerator += n;
+        s.denominator += d;
+        s.known_part[o] += part;
+        s.active[o] = true;
+        s.known_share += l.target_share.unwrap_or(0.0);
     }
-    s
 }
 
 fn finish(s: &Sums, measure: Measure, min_coverage: f64) -> Estimate {
@@ -806,8 +867,8 @@ mod tests {
             let mut v = SourceValues::new(1, plan.sources.len(), 1);
             let mut expected = 0.0;
             let mut scale = 0.0;
-            for s in 0..plan.sources.len() {
-                if let Some(x) = raw[s] {
+            for (s, x) in raw.iter().take(plan.sources.len()).enumerate() {
+                if let Some(x) = *x {
                     v.add(0, s, 0, x);
                     expected += x;
                     scale += x.abs();

@@ -11,15 +11,15 @@
 //! still add up to one.
 //!
 //! **Target shares.** With `|a ∩ b|` the measure (area or population) of an
-//! intersection, `target_share(x, y) = |x ∩ y| / |y|` and `target_share(y,
-//! z) = |y ∩ z| / |z|`. The piece of z made of x is `sum over y of |x ∩ y ∩
-//! z|`, which the two tables do not give. Assuming, as allocation itself
-//! does, that x's part of y is spread evenly over y, `|x ∩ y ∩ z| = |x ∩ y|
-//! * |y ∩ z| / |y|`, so `target_share(x, z) = sum over y of target_share(x,
-//! y) * target_share(y, z)`. It is exact whenever each y lies wholly inside
-//! one x or wholly inside one z (then one of the two ratios is the whole
-//! of y). When either table lacks a target share on a path, the composed
-//! row has none.
+//! intersection, `target_share(x, y) = |x ∩ y| / |y|` and
+//! `target_share(y, z) = |y ∩ z| / |z|`. The piece of z made of x is
+//! `sum over y of |x ∩ y ∩ z|`, which the two tables do not give. Assuming,
+//! as allocation itself does, that x's part of y is spread evenly over y,
+//! `|x ∩ y ∩ z| = |x ∩ y| · |y ∩ z| / |y|`, so
+//! `target_share(x, z) = sum over y of target_share(x, y) · target_share(y, z)`.
+//! It is exact whenever each y lies wholly inside one x or wholly inside one
+//! z (then one of the two ratios is the whole of y). When either table lacks
+//! a target share on a path, the composed row has none.
 //!
 //! **Basis.** The composed row takes the basis of the first table's row,
 //! unless that is `history` (one to one), in which case it takes the
@@ -119,6 +119,11 @@ pub fn check(table: &'static str, crosswalk: &Crosswalk) -> Result<(), ChainErro
     Ok(())
 }
 
+/// A (source, target) pair; no target for the uncovered share.
+type Pair<'a> = (&'a str, Option<&'a str>);
+/// Weight, target share (if every path has one) and basis of a composed row.
+type Composed = (f64, Option<f64>, Basis);
+
 /// Composes `first` (x->y) and `second` (y->z) into x->z, sorted. Both are
 /// checked first; every target of `first` must be a source of `second`.
 pub fn compose(first: &Crosswalk, second: &Crosswalk) -> Result<Crosswalk, ChainError> {
@@ -143,7 +148,7 @@ pub fn compose(first: &Crosswalk, second: &Crosswalk) -> Result<Crosswalk, Chain
         });
     }
     // (x, z or None) -> (weight, target share if every path has one, basis)
-    let mut out: BTreeMap<(&str, Option<&str>), (f64, Option<f64>, Basis)> = BTreeMap::new();
+    let mut out: BTreeMap<Pair, Composed> = BTreeMap::new();
     for a in &first.rows {
         let x = a.from_code.as_str();
         let Some(y) = a.to_code.as_deref() else {

@@ -20,6 +20,7 @@ use crate::core::allocate::{Allocation, Plan, SourceValues};
 use crate::error::{Error, Location, Result};
 use crate::io::output::fixed;
 use crate::io::table::{detect_delimiter, is_parquet};
+use std::ops::Range;
 
 /// Which columns to read and how.
 #[derive(Debug, Clone)]
@@ -363,7 +364,7 @@ impl DataTable {
         let mut last: Option<((Option<&str>, &str), u32)> = None;
         let states: Box<dyn Iterator<Item = Option<&str>>> = match &self.states {
             Some(s) => Box::new(s.iter()),
-            None => Box::new(std::iter::repeat(Some("")).take(n)),
+            None => Box::new(std::iter::repeat_n(Some(""), n)),
         };
         for (i, (code, state)) in self.codes.iter().zip(states).enumerate() {
             let line = i as u64 + 2;
@@ -456,7 +457,7 @@ impl DataTable {
     pub fn fold(&self, indexed: &Indexed, source_of: &[Option<u32>], sources: usize) -> Folded {
         let periods = indexed.periods.len();
         let columns = self.values.len();
-        let mut values = SourceValues::new(periods, sources, columns);
+        let mut by_period = vec![f64::NAN; periods * sources * columns];
         let mut rows = vec![0u32; periods * sources];
         let mut first = vec![0u32; periods * sources];
         // Each row's cell, or NONE when its code or period is missing or
@@ -483,11 +484,12 @@ impl DataTable {
         for (col, ca) in self.values.iter().enumerate() {
             for (v, &cell) in ca.iter().zip(&cells) {
                 if let (Some(v), true) = (v, cell != NONE) {
-                    let cell = cell as usize;
-                    values.add(cell / sources, cell % sources, col, v);
+                    let x = &mut by_period[cell as usize * columns + col];
+                    *x = if x.is_nan() { v } else { *x + v };
                 }
             }
         }
+        let values = SourceValues::from_period_major(periods, sources, columns, &by_period);
         Folded {
             values,
             rows,
@@ -535,14 +537,17 @@ pub struct ResultLayout {
 /// Decimals for coverage.
 pub const COVERAGE_DECIMALS: usize = 6;
 
-/// Writes the results as CSV, sorted by (code, period). Lines are
-/// formatted in parallel and written in order, so the bytes do not depend
-/// on the number of threads.
+/// Writes the results as CSV, sorted by (code, period). Targets are
+/// allocated a batch at a time by `allocate` (each batch is then handed to
+/// `seen`, for summaries), lines formatted in parallel and written in
+/// order, so the bytes do not depend on the number of threads and memory
+/// stays bounded.
 pub fn write_results(
     w: &mut dyn Write,
     plan: &Plan,
     periods: &[String],
-    allocation: &Allocation,
+    allocate: &(dyn Fn(Range<usize>) -> Allocation + Sync),
+    seen: &mut dyn FnMut(&Allocation),
     layout: &ResultLayout,
 ) -> std::io::Result<()> {
     let mut header = vec!["code".to_string()];
@@ -569,15 +574,21 @@ pub fn write_results(
             .join(",")
     )?;
     let targets = plan.targets.len();
-    const CHUNK: usize = 64;
-    let chunks: Vec<usize> = (0..targets.div_ceil(CHUNK)).collect();
-    // Write in batches of chunks to bound the memory held at once.
-    for batch in chunks.chunks(64) {
+    // A few targets per buffer, a few buffers per batch: bounded memory,
+    // both cores busy.
+    let chunk = (20_000 / periods.len().max(1)).clamp(1, 1024);
+    const CHUNK_PER_BATCH: usize = 32;
+    let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
+    for batch in chunks.chunks(CHUNK_PER_BATCH) {
+        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else {
+            continue;
+        };
+        let allocation = allocate(first * chunk..((last + 1) * chunk).min(targets));
         let buffers: Vec<Vec<u8>> = batch
             .par_iter()
             .map(|&c| {
                 let mut buf = Vec::new();
-                for t in c * CHUNK..((c + 1) * CHUNK).min(targets) {
+                for t in c * chunk..((c + 1) * chunk).min(targets) {
                     let code = csv_field(&plan.targets[t]);
                     let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
                     for (p, period) in periods.iter().enumerate() {
@@ -611,23 +622,58 @@ pub fn write_results(
         for b in buffers {
             w.write_all(&b)?;
         }
+        seen(&allocation);
     }
     Ok(())
 }
 
-/// Appends `value` with a fixed number of decimals (as [`fixed`] writes it).
+/// Appends `value` with a fixed number of decimals, the same bytes as
+/// [`fixed`] writes. Ordinary values take an integer path (scale, round,
+/// print digits); values near a rounding tie, very large values or many
+/// decimals take the exact formatter.
 fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
-    let _ = write!(buf, "{value:.decimals$}");
-    // "-0.000" is written as "0.000", as `fixed` does.
-    let Some(tail) = buf
-        .len()
-        .checked_sub(decimals + if decimals > 0 { 3 } else { 2 })
-    else {
-        return;
-    };
-    if buf.get(tail) == Some(&b'-') && buf[tail + 1..].iter().all(|&b| b == b'0' || b == b'.') {
-        buf.remove(tail);
+    const POW10: [f64; 10] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+    if decimals < POW10.len() {
+        let scaled = value * POW10[decimals];
+        // Below 1e12 the scaled value is within 2^-12 of the exact product,
+        // so unless its fraction is near one half it rounds the same way.
+        if scaled.abs() < 1e12 && (scaled.fract().abs() - 0.5).abs() > 1e-3 {
+            let n = scaled.round() as i64;
+            if n < 0 {
+                buf.push(b'-');
+            }
+            let n = n.unsigned_abs();
+            let unit = POW10[decimals] as u64;
+            push_digits(buf, n / unit);
+            if decimals > 0 {
+                buf.push(b'.');
+                let frac = n % unit;
+                let mut digits = [b'0'; 9];
+                let mut f = frac;
+                for i in (0..decimals).rev() {
+                    digits[i] = b'0' + (f % 10) as u8;
+                    f /= 10;
+                }
+                buf.extend_from_slice(&digits[..decimals]);
+            }
+            return;
+        }
     }
+    buf.extend_from_slice(fixed(value, decimals).as_bytes());
+}
+
+fn push_digits(buf: &mut Vec<u8>, mut n: u64) {
+    let mut tmp = [0u8; 20];
+    let mut i = tmp.len();
+    loop {
+        i -= 1;
+        tmp[i] = b'0' + (n % 10) as u8;
+        n /= 10;
+        if n == 0 {
+            break;
+        }
+    }
+    buf.extend_from_slice(&tmp[i..]);
 }
 
 /// Quotes a field if it needs it.
@@ -673,9 +719,10 @@ mod tests {
     #[test]
     fn fixed_decimals_in_a_buffer_match_the_shared_formatter() {
         for v in [
-            0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5,
+            0.0, -0.0, -1e-12, 1.5, -2.25, 123456.789, 1e15, -0.0000004, 0.5, 2.5, 0.0000005, -7.0,
+            0.125, 1e300,
         ] {
-            for d in [0, 3, 6] {
+            for d in [0, 1, 3, 6, 9, 12] {
                 let mut buf = b"x,".to_vec();
                 push_fixed(&mut buf, v, d);
                 assert_eq!(
@@ -684,6 +731,15 @@ mod tests {
                     "{v} {d}"
                 );
             }
+        }
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn the_fast_path_writes_what_the_exact_formatter_writes(v in -1.0e7f64..1.0e7, d in 0usize..10) {
+            let mut buf = Vec::new();
+            push_fixed(&mut buf, v, d);
+            proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), fixed(v, d));
         }
     }
 
