@@ -427,19 +427,6 @@ fn sorted(mut cw: Crosswalk) -> Crosswalk {
     cw
 }
 
-/// The shipped 2017 -> 2023 county crosswalk, if present.
-pub fn shipped_crosswalk(path: &Path) -> Result<Option<Crosswalk>> {
-    if path.is_file() {
-        Ok(Some(sorted(crosswalk_file::read_csv(path)?)))
-    } else {
-        Ok(None)
-    }
-}
-
-fn shipped_path() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join(SHIPPED_CROSSWALK)
-}
-
 /// The crosswalk that carries each data code onto the counties of `year`.
 struct Carrying {
     crosswalk: Crosswalk,
@@ -699,9 +686,9 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                     "--to-vintage {year}: the built-in reference has no counties for that year"
                 )));
             }
-            let shipped_file = shipped_path();
+            // The shipped crosswalk is embedded in the binary.
             let shipped = if year == 2023 {
-                shipped_crosswalk(&shipped_file)?
+                Some(crate::io::builtin::us_county_crosswalk_2017_2023()?)
             } else {
                 None
             };

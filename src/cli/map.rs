@@ -38,6 +38,10 @@ pub struct Args {
     /// TopoJSON object of a layer file.
     #[arg(long, value_name = "NAME")]
     pub object: Option<String>,
+    /// Draw only the states (first two digits of the codes) that have a row
+    /// in the table (built-in US layers).
+    #[arg(long = "states-in-data")]
+    pub states_in_data_only: bool,
     /// Title written on the map.
     #[arg(long, value_name = "TEXT")]
     pub title: Option<String>,
@@ -177,8 +181,12 @@ pub fn draw(args: &Args) -> Result<MapCounts> {
             Standing::Absent => 3,
         }
     };
+    let states: BTreeSet<&str> = rows.keys().filter_map(|c| c.get(..2)).collect();
     let mut shapes = Vec::with_capacity(prepared.units.len());
     for u in &prepared.units {
+        if args.states_in_data_only && builtin && !states.contains(u.key.get(..2).unwrap_or("")) {
+            continue;
+        }
         let standing = match rows.get(&u.key) {
             None => Standing::Absent,
             Some(None) => Standing::Joined,

@@ -250,3 +250,19 @@ pub fn read_reference_file(path: &Path) -> Result<Reference> {
         aliases: Vec::new(),
     })
 }
+
+/// The shipped US county crosswalk from the 2017 to the 2023 vintage (area
+/// weights, made by `regionkey overlay` from the built-in layers).
+pub const COUNTY_CROSSWALK_2017_2023_PATH: &str = "crosswalks/us-counties-2017-2023.csv";
+
+const COUNTY_CROSSWALK_2017_2023: &[u8] =
+    include_bytes!("../../crosswalks/us-counties-2017-2023.csv");
+
+/// The shipped 2017 -> 2023 county crosswalk, rows sorted.
+pub fn us_county_crosswalk_2017_2023() -> Result<crate::core::crosswalk::Crosswalk> {
+    let label = format!("builtin:{COUNTY_CROSSWALK_2017_2023_PATH}");
+    let mut cw =
+        crate::io::crosswalk_file::read_csv_bytes(Path::new(&label), COUNTY_CROSSWALK_2017_2023)?;
+    cw.sort();
+    Ok(cw)
+}

@@ -7,7 +7,7 @@ use std::path::Path;
 use crate::core::crosswalk::{Crosswalk, CrosswalkRow};
 use crate::error::{Error, Location, Result};
 use crate::io::output::fixed;
-use crate::io::table::{read_table, ReadOptions};
+use crate::io::table::{read_table, read_table_bytes, ReadOptions};
 
 /// The column names of a crosswalk file, in order.
 pub const COLUMNS: [&str; 5] = ["from_code", "to_code", "weight", "target_share", "basis"];
@@ -35,7 +35,18 @@ pub fn write_csv(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()
 /// Reads a crosswalk CSV. Structural problems (missing column, a weight that
 /// is not a number, an unknown basis) are errors naming line and column.
 pub fn read_csv(path: &Path) -> Result<Crosswalk> {
-    let table = read_table(path, ReadOptions::default())?;
+    from_table(read_table(path, ReadOptions::default())?)
+}
+
+/// Reads a crosswalk CSV held in memory (an embedded file); `label` names it
+/// in messages.
+pub fn read_csv_bytes(label: &Path, bytes: &[u8]) -> Result<Crosswalk> {
+    from_table(read_table_bytes(label, bytes, ReadOptions::default())?)
+}
+
+fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
+    let path = table.path.clone();
+    let path = path.as_path();
     let cols: Vec<usize> = COLUMNS[..3]
         .iter()
         .map(|c| table.column(c))

@@ -65,7 +65,7 @@ fn parent_dir(path: &Path) -> &Path {
 }
 
 /// Writes through `fill` to `target`. For a file: a temporary file in the
-/// same folder, flushed and synced, then renamed over the destination.
+/// same folder, flushed, then renamed over the destination.
 pub fn write_to<F>(target: &Target, fill: F) -> Result<()>
 where
     F: FnOnce(&mut dyn Write) -> std::io::Result<()>,
@@ -99,9 +99,19 @@ where
             .and_then(|_| w.flush())
             .map_err(|e| Error::io(path, "cannot write", e))?;
     }
-    tmp.as_file()
-        .sync_all()
-        .map_err(|e| Error::io(path, "cannot write", e))?;
+    // No fsync: the rename makes the output appear whole or not at all to
+    // readers and after a failed run; syncing large outputs costs seconds
+    // and guards only against power loss.
+    // Temporary files are created private (0600); an output is an ordinary
+    // file, readable by others like any file the user writes, or keeps the
+    // permissions of the file it replaces.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(path).map_or(0o644, |m| m.permissions().mode() & 0o7777);
+        std::fs::set_permissions(tmp.path(), std::fs::Permissions::from_mode(mode))
+            .map_err(|e| Error::io(path, "cannot set permissions of", e))?;
+    }
     tmp.persist(path)
         .map_err(|e| Error::io(path, "cannot move into place", e.error))?;
     Ok(())

@@ -110,6 +110,15 @@ pub fn read_table(path: &Path, options: ReadOptions) -> Result<Table> {
     read_delimited(path, &bytes, options)
 }
 
+/// Reads a table from bytes already in memory (an embedded file); `path`
+/// names it in messages.
+pub fn read_table_bytes(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Table> {
+    if is_parquet(path, bytes) {
+        return read_parquet(path, bytes.to_vec());
+    }
+    read_delimited(path, bytes, options)
+}
+
 /// Decodes bytes: UTF-8 (BOM removed) or, failing that, Windows-1252 with
 /// a warning naming the first undecodable line.
 pub fn decode(path: &Path, bytes: &[u8]) -> Result<(String, Encoding, Option<String>)> {
