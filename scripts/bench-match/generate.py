@@ -12,6 +12,9 @@ zero, a few typos (a dropped or doubled letter), historical names (Dade,
 Shannon, Wade Hampton) and some garbage (placeholders, city names). Many
 rows repeat, as in yearly data: the same counties appear every year.
 
+Column `true_code` holds the code a generated name was made from (empty
+for history names and garbage), so the run can count wrong matches.
+
 Deterministic: the same seed gives the same file.
 
     python3 scripts/bench-match/generate.py /tmp/bench-1m.csv [ROWS] [SEED]
@@ -64,16 +67,16 @@ def main():
 
     with open(out, "w", newline="", encoding="utf-8") as f:
         w = csv.writer(f, lineterminator="\n")
-        w.writerow(["year", "county_name", "state", "cases"])
+        w.writerow(["year", "county_name", "state", "cases", "true_code"])
         for n in range(rows):
             year = 2015 + n % 9
             r = rng.random()
             if r < 0.02:
-                w.writerow([year, rng.choice(garbage), rng.choice(list(states.values()))["usps"], rng.randrange(100)])
+                w.writerow([year, rng.choice(garbage), rng.choice(list(states.values()))["usps"], rng.randrange(100), ""])
                 continue
             if r < 0.03:
                 name, st = rng.choice(history)
-                w.writerow([year, name, st, rng.randrange(100)])
+                w.writerow([year, name, st, rng.randrange(100), ""])
                 continue
             u = rng.choices(units, cum_weights=cumulative)[0]
             st = states[u["code"][:2]]
@@ -95,10 +98,10 @@ def main():
             elif r < 0.88:
                 name = full.lower()
             elif r < 0.91:
-                name = typo(u["name"]) + " County"
+                name = (typo(u["name"]) + " " + u["description"]).strip()
             else:
                 name = u["name"].replace("St. ", "Saint ").replace("'", "")
-            w.writerow([year, name, state, rng.randrange(1000)])
+            w.writerow([year, name, state, rng.randrange(1000), u["code"]])
 
 
 if __name__ == "__main__":

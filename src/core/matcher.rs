@@ -547,12 +547,24 @@ impl<'r> Matcher<'r> {
             return Resolution::unmatched(why, Vec::new());
         }
         let words = tokens(name);
-        let mut outcomes: Vec<(Grade, Resolution)> = Vec::new();
-        for (range, reading_state) in self.readings(&words, state.as_deref()) {
-            let s = reading_state.as_deref().or(state.as_deref());
-            outcomes.push(self.resolve_reading(&words[range], s));
+        let readings = self.readings(&words, state.as_deref());
+        // Exact names first in every reading; near misses only when no
+        // reading has an exact name (a near miss in one reading never beats
+        // an exact name in another, and the costly scoring runs only then).
+        let run = |fuzzy: bool| {
+            let outcomes: Vec<(Grade, Resolution)> = readings
+                .iter()
+                .map(|(range, reading_state)| {
+                    let s = reading_state.as_deref().or(state.as_deref());
+                    self.resolve_reading(&words[range.clone()], s, fuzzy)
+                })
+                .collect();
+            combine(outcomes)
+        };
+        let (mut grade, mut best) = run(false);
+        if grade < Grade::Ambiguous {
+            (grade, best) = run(true);
         }
-        let (grade, mut best) = combine(outcomes);
         if best.method == Some(Method::Variant) {
             let lower = name.to_lowercase();
             if let Some(code) = &best.code {
@@ -717,7 +729,12 @@ impl<'r> Matcher<'r> {
         }
     }
 
-    fn resolve_reading(&self, words: &[Token], state: Option<&str>) -> (Grade, Resolution) {
+    fn resolve_reading(
+        &self,
+        words: &[Token],
+        state: Option<&str>,
+        fuzzy: bool,
+    ) -> (Grade, Resolution) {
         let splits = self.splits(words);
         let mut rejected_city: Vec<usize> = Vec::new();
         for split in &splits {
@@ -800,7 +817,11 @@ impl<'r> Matcher<'r> {
             .or(splits.first())
             .cloned();
         match primary {
-            Some(split) => self.fuzzy(&split, state),
+            Some(split) if fuzzy => self.fuzzy(&split, state),
+            Some(_) => (
+                Grade::Nothing,
+                Resolution::unmatched("no exact name", Vec::new()),
+            ),
             None => (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),

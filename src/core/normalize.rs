@@ -110,8 +110,15 @@ fn canonical_word(word: String) -> String {
 
 /// Splits a name into normalized words (see the module documentation).
 pub fn tokens(text: &str) -> Vec<Token> {
-    let repaired = repair_mojibake(text);
-    let chars: Vec<char> = repaired.nfkd().filter(|c| !is_combining_mark(*c)).collect();
+    // ASCII needs neither repair nor decomposition (the common case).
+    let chars: Vec<char> = if text.is_ascii() {
+        text.chars().collect()
+    } else {
+        repair_mojibake(text)
+            .nfkd()
+            .filter(|c| !is_combining_mark(*c))
+            .collect()
+    };
     let mut out: Vec<Token> = Vec::new();
     let mut word = String::new();
     let mut separator = false;
@@ -128,6 +135,8 @@ pub fn tokens(text: &str) -> Vec<Token> {
         if is_apostrophe(c) {
             // Dropped inside a word: "George's" = "Georges", "Hawaiʻi" = "Hawaii".
             // (Checked first: the ʻokina is a modifier letter, alphanumeric.)
+        } else if c.is_ascii_alphanumeric() {
+            word.push(c.to_ascii_lowercase());
         } else if c.is_alphanumeric() {
             word.extend(c.to_lowercase());
         } else if c == '&' {
@@ -222,8 +231,10 @@ pub const PLACEHOLDERS: &[&str] = &[
 /// True when the text is a placeholder rather than a place (see
 /// [`PLACEHOLDERS`]).
 pub fn is_placeholder(text: &str) -> bool {
-    let k = key(text);
-    PLACEHOLDERS.iter().any(|p| key(p) == k)
+    static KEYS: std::sync::OnceLock<std::collections::HashSet<String>> =
+        std::sync::OnceLock::new();
+    KEYS.get_or_init(|| PLACEHOLDERS.iter().map(|p| key(p)).collect())
+        .contains(&key(text))
 }
 
 #[cfg(test)]
