@@ -86,6 +86,10 @@ pub struct Args {
     /// percentile) but is not one (repeatable).
     #[arg(long, value_name = "COL")]
     pub allow_name: Vec<String>,
+    /// With --to-vintage: write every unit of the vintage, also those no
+    /// code of the data reaches (their figures empty, coverage 0).
+    #[arg(long, requires = "to_vintage")]
+    pub all_units: bool,
     /// With --to-vintage: when a divided unit has no weights, report its rows
     /// and leave them out instead of stopping with an error.
     #[arg(long)]
@@ -714,8 +718,13 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 )));
             }
             findings.extend(c.findings);
-            let mut targets: Vec<String> =
-                reference.units_in(year).map(|u| u.code.clone()).collect();
+            // Every unit of the vintage with --all-units; otherwise the units
+            // the data's codes reach.
+            let mut targets: Vec<String> = if args.all_units {
+                reference.units_in(year).map(|u| u.code.clone()).collect()
+            } else {
+                Vec::new()
+            };
             targets.sort();
             targets.dedup();
             let carried = c.carried;

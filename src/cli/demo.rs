@@ -412,7 +412,7 @@ pub fn reports_csv() -> String {
 fn decisions_csv() -> String {
     let mut text = String::from("name,state,chosen_code,why\n");
     for (name, state, code, why) in DECISIONS {
-        let _ = writeln!(text, "\"{name}\",{state},{code},{why}");
+        let _ = writeln!(text, "\"{name}\",{state},{code},\"{why}\"");
     }
     text
 }
@@ -592,7 +592,7 @@ fn summarize(
     let out = read_table(harmonized, ReadOptions::default())?;
     let cov = out.column("households_served_coverage")?;
     let code = out.column("code")?;
-    let period = out.column("year")?;
+    let period = out.column("period")?;
     let mut partial: Vec<String> = Vec::new();
     for r in &out.records {
         let c: f64 = r[cov].parse().unwrap_or(0.0);

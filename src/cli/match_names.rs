@@ -18,7 +18,7 @@ use crate::error::{Error, Location, Result};
 use crate::io::builtin::{read_reference_file, us_counties, us_states};
 use crate::io::output::{fixed, write_to, Target};
 use crate::io::progress::Progress;
-use crate::io::review::{read_decisions, write_review, Choice, ReviewItem, NONE};
+use crate::io::review::{read_decisions, write_review, Choice, Decision, ReviewItem, NONE};
 use crate::io::table::{read_table, ReadOptions, Table};
 
 /// The columns `regionkey match` adds, in order.
@@ -70,6 +70,12 @@ pub struct Args {
     /// Boundary vintage whose units are matched (default: the latest in the reference).
     #[arg(long, value_name = "YEAR")]
     pub vintage: Option<u16>,
+
+    /// Column holding each row's year: the row is matched against the units
+    /// of that vintage (years after the latest vintage use the latest).
+    /// Overrides --vintage.
+    #[arg(long, value_name = "COL", conflicts_with = "vintage")]
+    pub vintage_column: Option<String>,
 
     /// Match counties (default) or states.
     #[arg(long, value_enum)]
@@ -129,6 +135,8 @@ struct Config {
     source: Source,
     codes: CodeForm,
     vintage: u16,
+    /// First and latest vintage the reference covers.
+    span: (u16, u16),
     output: Target,
     review: Option<Target>,
 }
@@ -171,8 +179,8 @@ fn configure(args: &Args) -> Result<Config> {
         Source::File(_) => r.latest_year().unwrap_or(0),
     };
     let vintage = args.vintage.unwrap_or(latest);
+    let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
     if codes == CodeForm::County {
-        let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
         if vintage < first || vintage > latest {
             return Err(Error::Usage(format!(
                 "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
@@ -183,13 +191,11 @@ fn configure(args: &Args) -> Result<Config> {
         source,
         codes,
         vintage,
+        span: (first, latest),
         output,
         review,
     })
 }
-
-/// A decision made ready: the resolution it gives.
-type Decided = HashMap<String, Resolution>;
 
 fn pair_key(buf: &mut String, name: &str, state: &str) {
     buf.clear();
@@ -198,33 +204,89 @@ fn pair_key(buf: &mut String, name: &str, state: &str) {
     buf.push_str(state.trim());
 }
 
-fn load_decisions(args: &Args, matcher: &Matcher) -> Result<Decided> {
-    let mut out = Decided::new();
+/// The matchers of the vintages met so far, built on first use.
+struct Matchers<'r> {
+    reference: &'r Reference,
+    codes: CodeForm,
+    built: HashMap<u16, Matcher<'r>>,
+}
+
+impl<'r> Matchers<'r> {
+    fn get(&mut self, vintage: u16) -> &Matcher<'r> {
+        let (reference, codes) = (self.reference, self.codes);
+        self.built
+            .entry(vintage)
+            .or_insert_with(|| Matcher::new(reference, vintage, codes))
+    }
+}
+
+/// The decisions of `--decisions`, by (name, state) key.
+fn load_decisions(args: &Args) -> Result<HashMap<String, Decision>> {
+    let mut out = HashMap::new();
     let Some(path) = &args.decisions else {
         return Ok(out);
     };
     for d in read_decisions(path)? {
-        let resolution = match &d.choice {
-            Choice::NotAUnit => matcher.decided(None),
-            Choice::Code(c) => matcher.decided(Some(c)),
-        };
-        let Some(resolution) = resolution else {
-            let Choice::Code(c) = &d.choice else {
-                unreachable!("`none` always resolves")
-            };
-            return Err(Error::input(
-                d.location,
-                format!(
-                    "{c:?} is not a unit in {}; write a code of that vintage, or `{NONE}` to leave the name unmatched",
-                    matcher.vintage()
-                ),
-            ));
-        };
         let mut k = String::new();
         pair_key(&mut k, &d.name, &d.state);
-        out.insert(k, resolution);
+        out.insert(k, d);
     }
     Ok(out)
+}
+
+/// The resolution a decision gives in `vintage`. A code that is not a unit
+/// of that vintage but is one of another vintage of the reference is
+/// accepted with a note (a decision names a unit, whatever the era); a
+/// code of no vintage is an error naming the decision's line and column.
+fn decide(matchers: &mut Matchers<'_>, vintage: u16, d: &Decision) -> Result<Resolution> {
+    let code = match &d.choice {
+        Choice::NotAUnit => None,
+        Choice::Code(c) => Some(c.as_str()),
+    };
+    if let Some(r) = matchers.get(vintage).decided(code) {
+        return Ok(r);
+    }
+    let Some(c) = code else {
+        unreachable!("`none` always resolves")
+    };
+    let eras = matchers.reference.eras(c);
+    if let Some(era) = eras.first() {
+        let valid = era.valid.from;
+        if let Some(mut r) = matchers.get(valid).decided(Some(c)) {
+            r.note = format!("decided code is a unit of another vintage (from {valid})");
+            return Ok(r);
+        }
+    }
+    Err(Error::input(
+        d.location.clone(),
+        format!(
+            "{c:?} is not a unit in {vintage} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched"
+        ),
+    ))
+}
+
+/// The year of a row's vintage column: the first four digits ("2015",
+/// "2015.0", "2015-06-30"); years after the latest vintage use the latest.
+fn row_vintage(table: &Table, row: usize, col: usize, span: (u16, u16)) -> Result<u16> {
+    let text = table.records[row][col].trim();
+    let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
+    let year = (digits.len() == 4)
+        .then(|| digits.parse::<u16>().ok())
+        .flatten();
+    match year {
+        Some(y) if y >= span.0 => Ok(y.min(span.1)),
+        Some(y) => Err(Error::input(
+            table.location(row, col),
+            format!(
+                "year {y} is before the reference's first vintage ({})",
+                span.0
+            ),
+        )),
+        None => Err(Error::input(
+            table.location(row, col),
+            format!("{text:?} is not a year (--vintage-column wants a four-digit year per row)"),
+        )),
+    }
 }
 
 /// The names of the added columns for this input.
@@ -264,8 +326,17 @@ struct Distinct {
 pub fn run(args: Args, global: Global) -> Result<()> {
     let config = configure(&args)?;
     let reference = config.source.get();
-    let matcher = Matcher::new(reference, config.vintage, config.codes);
-    let decisions = load_decisions(&args, &matcher)?;
+    let mut matchers = Matchers {
+        reference,
+        codes: config.codes,
+        built: HashMap::new(),
+    };
+    let decisions = load_decisions(&args)?;
+    // Without a vintage column, every decision is checked now, before the
+    // long work starts.
+    for d in decisions.values() {
+        decide(&mut matchers, config.vintage, d)?;
+    }
 
     let table = read_table(
         &args.input,
@@ -282,7 +353,12 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         .as_deref()
         .map(|c| table.column(c))
         .transpose()?;
-    if state_col.is_some() && !matcher.has_parents() {
+    let vintage_col = args
+        .vintage_column
+        .as_deref()
+        .map(|c| table.column(c))
+        .transpose()?;
+    if state_col.is_some() && !matchers.get(config.vintage).has_parents() {
         return Err(Error::Usage(format!(
             "--state-column: the reference {} has no parent units to read a state against",
             reference.label
@@ -299,13 +375,24 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     for (i, record) in table.records.iter().enumerate() {
         let name = &record[name_col];
         let state = state_col.map_or("", |c| &record[c]);
+        let vintage = match vintage_col {
+            Some(c) => row_vintage(&table, i, c, config.span)?,
+            None => config.vintage,
+        };
         pair_key(&mut k, name, state);
+        let decision = decisions.get(k.as_str());
+        if vintage_col.is_some() {
+            k.push('\u{1f}');
+            k.push_str(&vintage.to_string());
+        }
         let id = match index.get(k.as_str()) {
             Some(&id) => id,
             None => {
-                let found = matcher.resolve(name, state_col.map(|_| state));
-                let (resolution, matcher_said, decided) = match decisions.get(k.as_str()) {
-                    Some(d) => (d.clone(), Some(found), true),
+                let found = matchers
+                    .get(vintage)
+                    .resolve(name, state_col.map(|_| state));
+                let (resolution, matcher_said, decided) = match decision {
+                    Some(d) => (decide(&mut matchers, vintage, d)?, Some(found), true),
                     None => (found, None, false),
                 };
                 let id = distinct.len() as u32;
@@ -387,11 +474,21 @@ fn added_fields(r: &Resolution) -> [String; 7] {
 /// before unmatched, then most rows first, then input order.
 fn review_items(distinct: &[Distinct]) -> Vec<ReviewItem> {
     let mut items: Vec<(Status, u64, usize, ReviewItem)> = Vec::new();
+    // With per-row vintages one (name, state) may need review in several
+    // vintages: it gets one review row (the first vintage's reason and
+    // candidates) covering all its rows, since a decision covers them all.
+    let mut seen: HashMap<(&str, &str), usize> = HashMap::new();
     for (order, d) in distinct.iter().enumerate() {
         let said = d.matcher.as_ref().unwrap_or(&d.resolution);
         if said.status == Status::Matched && !d.decided {
             continue;
         }
+        if let Some(&i) = seen.get(&(d.name.as_str(), d.state.as_str())) {
+            items[i].1 += d.rows;
+            items[i].3.rows += d.rows;
+            continue;
+        }
+        seen.insert((d.name.as_str(), d.state.as_str()), items.len());
         let chosen = if d.decided {
             d.resolution
                 .code
@@ -428,9 +525,14 @@ fn summarize(
 ) {
     let mut by_status: HashMap<Status, u64> = HashMap::new();
     let mut by_method: std::collections::BTreeMap<Method, u64> = std::collections::BTreeMap::new();
-    let mut open = 0usize;
-    let mut used = 0usize;
+    // Counted by (name, state): with per-row vintages a name appears once
+    // per vintage in `distinct`.
+    let mut names: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
+    let mut open: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
+    let mut used: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
     for d in distinct {
+        let key = (d.name.as_str(), d.state.as_str());
+        names.insert(key);
         *by_status.entry(d.resolution.status).or_default() += d.rows;
         if d.resolution.status == Status::Matched {
             if let Some(m) = d.resolution.method {
@@ -438,10 +540,13 @@ fn summarize(
             }
         }
         if d.resolution.status != Status::Matched && !d.decided {
-            open += 1;
+            open.insert(key);
         }
-        used += usize::from(d.decided);
+        if d.decided {
+            used.insert(key);
+        }
     }
+    let (open, used) = (open.len(), used.len());
     let n = |s| by_status.get(&s).copied().unwrap_or(0);
     let methods: Vec<String> = by_method
         .iter()
@@ -451,7 +556,7 @@ fn summarize(
         global,
         format!(
             "regionkey match: {rows} rows, {} distinct names",
-            distinct.len()
+            names.len()
         ),
     );
     say(
