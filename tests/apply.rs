@@ -365,6 +365,7 @@ fn unemployment_to_2023(extra: &[&str]) -> (Vec<Row>, Vec<Row>, serde_json::Valu
             "id",
             "--to-vintage",
             "2023",
+            "--all-units",
             "--mean",
             "rate",
         ])
@@ -529,6 +530,7 @@ fn a_table_whose_periods_use_two_vintages_is_harmonized_in_one_call() {
             data.to_str().unwrap(),
             "--to-vintage",
             "2023",
+            "--all-units",
             "-c",
             cw.to_str().unwrap(),
         ])

@@ -608,3 +608,93 @@ fn jaro_winkler_agrees_with_the_published_examples_and_with_jellyfish() {
         );
     }
 }
+
+/// Per-row vintages: each row is matched against the counties of its own
+/// year. Expected codes from the Census Bureau's change list as recorded in
+/// crosswalks/us-county-changes.csv (Connecticut's planning regions from
+/// 2022; Wade Hampton valid until 2014).
+#[test]
+fn each_row_is_matched_against_the_counties_of_its_own_year() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    std::fs::write(
+        &input,
+        "year,name,state\n2020,Hartford County,CT\n2023,Hartford County,CT\n2023,Capitol Planning Region,CT\n2012,Wade Hampton,AK\n2023,Wade Hampton,AK\n2030,Kusilvak,AK\n",
+    )
+    .unwrap();
+    let out = Command::cargo_bin("regionkey")
+        .unwrap()
+        .args(["match"])
+        .arg(&input)
+        .args([
+            "--name-column",
+            "name",
+            "--state-column",
+            "state",
+            "--vintage-column",
+            "year",
+            "-q",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    let got: Vec<(String, String)> = text
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[3].to_string(), f[5].to_string())
+        })
+        .collect();
+    assert_eq!(got[0], ("09003".into(), "matched".into()));
+    assert_eq!(
+        got[1],
+        ("".into(), "review".into()),
+        "Hartford County was divided in 2022"
+    );
+    assert_eq!(got[2], ("09110".into(), "matched".into()));
+    assert_eq!(
+        got[3],
+        ("02270".into(), "matched".into()),
+        "Wade Hampton is valid in 2012"
+    );
+    assert_eq!(
+        got[4],
+        ("02158".into(), "matched".into()),
+        "carried to Kusilvak in 2023"
+    );
+    assert_eq!(
+        got[5],
+        ("02158".into(), "matched".into()),
+        "years after the latest vintage use the latest"
+    );
+}
+
+#[test]
+fn a_vintage_that_is_not_a_year_names_its_line_and_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    std::fs::write(&input, "year,name,state\n2020,Cook,IL\nlast year,Cook,IL\n").unwrap();
+    let out = Command::cargo_bin("regionkey")
+        .unwrap()
+        .args(["match"])
+        .arg(&input)
+        .args([
+            "--name-column",
+            "name",
+            "--state-column",
+            "state",
+            "--vintage-column",
+            "year",
+        ])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("line 3") && err.contains("\"year\""), "{err}");
+}

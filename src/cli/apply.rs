@@ -602,7 +602,13 @@ fn carry_codes(
             .collect();
         for code in wanted {
             out.carried.insert(code.to_string());
-            extra.extend(rows_for(table, code).cloned());
+            // Only the pieces inside reached targets: a source's pieces
+            // elsewhere would add rows for units no data reaches.
+            extra.extend(
+                rows_for(table, code)
+                    .filter(|r| r.to_code.as_ref().is_some_and(|t| reached.contains(t)))
+                    .cloned(),
+            );
             taken.insert(code.to_string());
         }
     }

@@ -180,12 +180,10 @@ fn configure(args: &Args) -> Result<Config> {
     };
     let vintage = args.vintage.unwrap_or(latest);
     let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
-    if codes == CodeForm::County {
-        if vintage < first || vintage > latest {
-            return Err(Error::Usage(format!(
-                "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
-            )));
-        }
+    if codes == CodeForm::County && (vintage < first || vintage > latest) {
+        return Err(Error::Usage(format!(
+            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
+        )));
     }
     Ok(Config {
         source,
@@ -234,11 +232,17 @@ fn load_decisions(args: &Args) -> Result<HashMap<String, Decision>> {
     Ok(out)
 }
 
-/// The resolution a decision gives in `vintage`. A code that is not a unit
-/// of that vintage but is one of another vintage of the reference is
-/// accepted with a note (a decision names a unit, whatever the era); a
-/// code of no vintage is an error naming the decision's line and column.
-fn decide(matchers: &mut Matchers<'_>, vintage: u16, d: &Decision) -> Result<Resolution> {
+/// The resolution a decision gives in `vintage`. With per-row vintages
+/// (`any_vintage`), a code that is not a unit of that vintage but is one of
+/// another vintage is accepted with a note, since one decision covers the
+/// name in every year. Otherwise a code outside the vintage is an error
+/// naming the decision's line and column.
+fn decide(
+    matchers: &mut Matchers<'_>,
+    vintage: u16,
+    d: &Decision,
+    any_vintage: bool,
+) -> Result<Resolution> {
     let code = match &d.choice {
         Choice::NotAUnit => None,
         Choice::Code(c) => Some(c.as_str()),
@@ -249,7 +253,11 @@ fn decide(matchers: &mut Matchers<'_>, vintage: u16, d: &Decision) -> Result<Res
     let Some(c) = code else {
         unreachable!("`none` always resolves")
     };
-    let eras = matchers.reference.eras(c);
+    let eras = if any_vintage {
+        matchers.reference.eras(c)
+    } else {
+        Vec::new()
+    };
     if let Some(era) = eras.first() {
         let valid = era.valid.from;
         if let Some(mut r) = matchers.get(valid).decided(Some(c)) {
@@ -334,8 +342,10 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     let decisions = load_decisions(&args)?;
     // Without a vintage column, every decision is checked now, before the
     // long work starts.
-    for d in decisions.values() {
-        decide(&mut matchers, config.vintage, d)?;
+    if args.vintage_column.is_none() {
+        for d in decisions.values() {
+            decide(&mut matchers, config.vintage, d, false)?;
+        }
     }
 
     let table = read_table(
@@ -392,7 +402,11 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                     .get(vintage)
                     .resolve(name, state_col.map(|_| state));
                 let (resolution, matcher_said, decided) = match decision {
-                    Some(d) => (decide(&mut matchers, vintage, d)?, Some(found), true),
+                    Some(d) => (
+                        decide(&mut matchers, vintage, d, vintage_col.is_some())?,
+                        Some(found),
+                        true,
+                    ),
                     None => (found, None, false),
                 };
                 let id = distinct.len() as u32;
