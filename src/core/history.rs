@@ -57,15 +57,27 @@ pub fn carry(reference: &Reference, code: &str, year: u16) -> Carried {
         return Carried::Unknown;
     };
     if first.valid.from > year {
-        backward(reference, code, year)
+        walk(reference, code, year, Direction::Backward)
     } else {
-        forward(reference, code, year)
+        walk(reference, code, year, Direction::Forward)
     }
 }
 
-/// Follows ceasing changes forward until every path reaches a code valid
-/// in `year`.
-fn forward(reference: &Reference, code: &str, year: u16) -> Carried {
+/// Which way through the history a code is carried.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Direction {
+    /// From an older code to a later vintage: follow ceasing changes.
+    Forward,
+    /// From a newer code to an earlier vintage: follow changes back to
+    /// their origins.
+    Backward,
+}
+
+/// Walks the change history from `code` until every path reaches a code
+/// valid in `year`. Forward, a unit with several ways on (a split) is
+/// divided; backward, a unit with several distinct origins is divided (a
+/// unit carved from one earlier unit lies wholly in it).
+fn walk(reference: &Reference, code: &str, year: u16, direction: Direction) -> Carried {
     let mut done = BTreeSet::new();
     let mut queue = VecDeque::from([code.to_string()]);
     let mut seen = BTreeSet::new();
@@ -79,63 +91,43 @@ fn forward(reference: &Reference, code: &str, year: u16) -> Carried {
             done.insert(c);
             continue;
         }
-        let moves: Vec<&Change> = reference
-            .changes
-            .iter()
-            .filter(|ch| ch.from_code == c && ch.to_code != c && ceases(ch.kind) && ch.year <= year)
-            .collect();
-        if moves.is_empty() {
-            // A code with no way forward: if it is valid under another name
-            // in `year` (a rename in place), the unit lookup above caught it.
-            continue;
-        }
-        if moves.len() > 1 {
+        let (next, ends): (Vec<&Change>, BTreeSet<&str>) = match direction {
+            Direction::Forward => {
+                let next: Vec<&Change> = reference
+                    .changes
+                    .iter()
+                    .filter(|ch| {
+                        ch.from_code == c && ch.to_code != c && ceases(ch.kind) && ch.year <= year
+                    })
+                    .collect();
+                let ends = next.iter().map(|ch| ch.to_code.as_str()).collect();
+                (next, ends)
+            }
+            Direction::Backward => {
+                let next: Vec<&Change> = reference
+                    .changes
+                    .iter()
+                    .filter(|ch| ch.to_code == c && ch.from_code != c && ch.year > year)
+                    .filter(|ch| ch.kind != ChangeKind::PartTransfer)
+                    .collect();
+                let ends = next.iter().map(|ch| ch.from_code.as_str()).collect();
+                (next, ends)
+            }
+        };
+        // A code with no way on is a dead end (a rename in place was caught
+        // by the unit lookup above).
+        if ends.len() > 1 {
             divided = true;
         }
-        for ch in moves {
+        for ch in next {
             steps.push(ch);
-            queue.push_back(ch.to_code.clone());
+            queue.push_back(match direction {
+                Direction::Forward => ch.to_code.clone(),
+                Direction::Backward => ch.from_code.clone(),
+            });
         }
     }
-    finish(done, steps, divided, true)
-}
-
-/// Follows changes backward until every path reaches a code valid in `year`.
-fn backward(reference: &Reference, code: &str, year: u16) -> Carried {
-    let mut done = BTreeSet::new();
-    let mut queue = VecDeque::from([code.to_string()]);
-    let mut seen = BTreeSet::new();
-    let mut steps: Vec<&Change> = Vec::new();
-    let mut divided = false;
-    while let Some(c) = queue.pop_front() {
-        if !seen.insert(c.clone()) {
-            continue;
-        }
-        if c != code && reference.unit(&c, year).is_some() {
-            done.insert(c);
-            continue;
-        }
-        let origins: Vec<&Change> = reference
-            .changes
-            .iter()
-            .filter(|ch| ch.to_code == c && ch.from_code != c && ch.year > year)
-            .filter(|ch| ch.kind != ChangeKind::PartTransfer)
-            .collect();
-        if origins.is_empty() {
-            continue;
-        }
-        // A unit carved from one earlier unit (created or split) lies wholly
-        // in it; one from several earlier units is divided among them.
-        let distinct: BTreeSet<&str> = origins.iter().map(|ch| ch.from_code.as_str()).collect();
-        if distinct.len() > 1 {
-            divided = true;
-        }
-        for ch in origins {
-            steps.push(ch);
-            queue.push_back(ch.from_code.clone());
-        }
-    }
-    finish(done, steps, divided, false)
+    finish(done, steps, divided, direction == Direction::Forward)
 }
 
 fn finish(
