@@ -366,42 +366,55 @@ pub fn allocate_range(
     let m = spec.measures.len();
     let first_target = targets.start;
     let count = targets.len();
-    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = targets
-        .into_par_iter()
-        .map(|t| {
-            let links = plan.links_of(t);
-            // Sums for every (period, measure), filled link by link so each
-            // source's periods are read in order.
-            let mut sums = vec![Sums::default(); periods * m];
-            for l in links {
+    let width = periods * m;
+    let mut estimates = vec![
+        Estimate {
+            value: None,
+            coverage: 0.0,
+        };
+        count * width
+    ];
+    // Each target fills its own slice of the result; the sums are scratch
+    // space reused from target to target (one buffer per worker).
+    let per_target: Vec<Vec<usize>> = if width == 0 {
+        vec![Vec::new(); count]
+    } else {
+        estimates
+            .par_chunks_mut(width)
+            .enumerate()
+            .map_init(Vec::new, |sums: &mut Vec<Sums>, (i, out)| {
+                let links = plan.links_of(first_target + i);
+                // Sums for every (period, measure), filled link by link so
+                // each source's periods are read in order.
+                sums.clear();
+                sums.resize(width, Sums::default());
+                for l in links {
+                    for p in 0..periods {
+                        for (k, measure) in spec.measures.iter().enumerate() {
+                            add_link(&mut sums[p * m + k], l, values, p, *measure);
+                        }
+                    }
+                }
+                let mut overlaps = Vec::new();
                 for p in 0..periods {
+                    let mut overlap = false;
                     for (k, measure) in spec.measures.iter().enumerate() {
-                        add_link(&mut sums[p * m + k], l, values, p, *measure);
+                        let s = &sums[p * m + k];
+                        if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
+                            overlap = true;
+                        }
+                        out[p * m + k] = finish(s, *measure, spec.min_coverage);
+                    }
+                    if overlap {
+                        overlaps.push(p);
                     }
                 }
-            }
-            let mut out = Vec::with_capacity(periods * m);
-            let mut overlaps = Vec::new();
-            for p in 0..periods {
-                let mut overlap = false;
-                for (k, measure) in spec.measures.iter().enumerate() {
-                    let s = &sums[p * m + k];
-                    if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
-                        overlap = true;
-                    }
-                    out.push(finish(s, *measure, spec.min_coverage));
-                }
-                if overlap {
-                    overlaps.push(p);
-                }
-            }
-            (out, overlaps)
-        })
-        .collect();
-    let mut estimates = Vec::with_capacity(count * periods * m);
+                overlaps
+            })
+            .collect()
+    };
     let mut overlaps = Vec::new();
-    for (i, (e, o)) in per_target.into_iter().enumerate() {
-        estimates.extend(e);
+    for (i, o) in per_target.into_iter().enumerate() {
         overlaps.extend(o.into_iter().map(|p| (first_target + i, p)));
     }
     Allocation {

@@ -578,53 +578,96 @@ pub fn write_results(
     // both cores busy.
     let chunk = (20_000 / periods.len().max(1)).clamp(1, 1024);
     const CHUNK_PER_BATCH: usize = 32;
-    let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
-    for batch in chunks.chunks(CHUNK_PER_BATCH) {
-        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else {
-            continue;
-        };
-        let allocation = allocate(first * chunk..((last + 1) * chunk).min(targets));
-        let buffers: Vec<Vec<u8>> = batch
-            .par_iter()
-            .map(|&c| {
-                let mut buf = Vec::new();
-                for t in c * chunk..((c + 1) * chunk).min(targets) {
-                    let code = csv_field(&plan.targets[t]);
-                    let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
-                    for (p, period) in periods.iter().enumerate() {
-                        buf.extend_from_slice(code.as_bytes());
-                        if let Some(n) = &name {
-                            buf.push(b',');
-                            buf.extend_from_slice(n.as_bytes());
-                        }
-                        if layout.with_period {
-                            buf.push(b',');
-                            buf.extend_from_slice(csv_field(period).as_bytes());
-                        }
-                        for (m, e) in allocation.row(t, p).iter().enumerate() {
-                            buf.push(b',');
-                            if let Some(v) = e.value {
-                                push_fixed(&mut buf, v, layout.decimals);
-                            }
-                            buf.push(b',');
-                            push_fixed(&mut buf, e.coverage, COVERAGE_DECIMALS);
-                            if let Some((_, note)) = &layout.notes[m] {
-                                buf.push(b',');
-                                buf.extend_from_slice(csv_field(note).as_bytes());
-                            }
-                        }
-                        buf.push(b'\n');
-                    }
+    let batches: Vec<Range<usize>> = (0..targets.div_ceil(chunk))
+        .step_by(CHUNK_PER_BATCH)
+        .map(|c| c * chunk..((c + CHUNK_PER_BATCH) * chunk).min(targets))
+        .collect();
+    let period_fields: Vec<std::borrow::Cow<'_, str>> =
+        periods.iter().map(|p| csv_field(p)).collect();
+    // Batches are allocated and formatted on another thread (lines in
+    // parallel) while this one writes the previous batch; the buffers go
+    // back and forth, so they are allocated once.
+    let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<(Allocation, Vec<Vec<u8>>)>(1);
+    let (empty_tx, empty_rx) = std::sync::mpsc::channel::<Vec<Vec<u8>>>();
+    std::thread::scope(|scope| -> std::io::Result<()> {
+        let producer = scope.spawn(move || {
+            for range in batches {
+                let allocation = allocate(range.clone());
+                let mut buffers = empty_rx.try_recv().unwrap_or_default();
+                let starts: Vec<usize> = range.clone().step_by(chunk).collect();
+                buffers.resize_with(starts.len(), Vec::new);
+                buffers
+                    .par_iter_mut()
+                    .zip(&starts)
+                    .for_each(|(buf, &start)| {
+                        buf.clear();
+                        let end = (start + chunk).min(range.end);
+                        format_targets(buf, plan, &period_fields, &allocation, start..end, layout);
+                    });
+                if full_tx.send((allocation, buffers)).is_err() {
+                    // The writer stopped (a write failed): nothing more to do.
+                    return;
                 }
-                buf
-            })
-            .collect();
-        for b in buffers {
-            w.write_all(&b)?;
+            }
+        });
+        let mut result = Ok(());
+        for (allocation, buffers) in full_rx.iter() {
+            if result.is_ok() {
+                result = buffers.iter().try_for_each(|b| w.write_all(b));
+                if result.is_ok() {
+                    seen(&allocation);
+                }
+            }
+            if result.is_err() {
+                break;
+            }
+            let _ = empty_tx.send(buffers);
         }
-        seen(&allocation);
+        drop(full_rx);
+        if let Err(panic) = producer.join() {
+            std::panic::resume_unwind(panic);
+        }
+        result
+    })
+}
+
+/// Formats the result lines of targets `range` (all periods) into `buf`.
+fn format_targets(
+    buf: &mut Vec<u8>,
+    plan: &Plan,
+    period_fields: &[std::borrow::Cow<'_, str>],
+    allocation: &Allocation,
+    range: Range<usize>,
+    layout: &ResultLayout,
+) {
+    for t in range {
+        let code = csv_field(&plan.targets[t]);
+        let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
+        for (p, period) in period_fields.iter().enumerate() {
+            buf.extend_from_slice(code.as_bytes());
+            if let Some(n) = &name {
+                buf.push(b',');
+                buf.extend_from_slice(n.as_bytes());
+            }
+            if layout.with_period {
+                buf.push(b',');
+                buf.extend_from_slice(period.as_bytes());
+            }
+            for (m, e) in allocation.row(t, p).iter().enumerate() {
+                buf.push(b',');
+                if let Some(v) = e.value {
+                    push_fixed(buf, v, layout.decimals);
+                }
+                buf.push(b',');
+                push_fixed(buf, e.coverage, COVERAGE_DECIMALS);
+                if let Some((_, note)) = &layout.notes[m] {
+                    buf.push(b',');
+                    buf.extend_from_slice(csv_field(note).as_bytes());
+                }
+            }
+            buf.push(b'\n');
+        }
     }
-    Ok(())
 }
 
 /// Appends `value` with a fixed number of decimals, the same bytes as
