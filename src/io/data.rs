@@ -676,47 +676,102 @@ fn format_targets(
 /// decimals take the exact formatter.
 fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
     const POW10: [f64; 10] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+    const UNIT: [u64; 10] = [
+        1,
+        10,
+        100,
+        1_000,
+        10_000,
+        100_000,
+        1_000_000,
+        10_000_000,
+        100_000_000,
+        1_000_000_000,
+    ];
     if decimals < POW10.len() {
         let scaled = value * POW10[decimals];
-        // Below 1e12 the scaled value is within 2^-12 of the exact product,
-        // so unless its fraction is near one half it rounds the same way.
-        if scaled.abs() < 1e12 && (scaled.fract().abs() - 0.5).abs() > 1e-3 {
-            let n = scaled.round() as i64;
-            if n < 0 {
-                buf.push(b'-');
+        if scaled.abs() < 1e12 {
+            // Integer part and fraction of `scaled` (exact below 2^52),
+            // without calling the C library's trunc and round.
+            let whole = scaled as i64;
+            let fraction = scaled - whole as f64;
+            // Below 1e12 the scaled value is within 2^-12 of the exact
+            // product, so unless its fraction is near one half it rounds
+            // the same way.
+            if (fraction.abs() - 0.5).abs() > 1e-3 {
+                let n = if fraction >= 0.5 {
+                    whole + 1
+                } else if fraction <= -0.5 {
+                    whole - 1
+                } else {
+                    whole
+                };
+                push_scaled(buf, n, UNIT[decimals], decimals);
+                return;
             }
-            let n = n.unsigned_abs();
-            let unit = POW10[decimals] as u64;
-            push_digits(buf, n / unit);
-            if decimals > 0 {
-                buf.push(b'.');
-                let frac = n % unit;
-                let mut digits = [b'0'; 9];
-                let mut f = frac;
-                for i in (0..decimals).rev() {
-                    digits[i] = b'0' + (f % 10) as u8;
-                    f /= 10;
-                }
-                buf.extend_from_slice(&digits[..decimals]);
-            }
-            return;
         }
     }
     buf.extend_from_slice(fixed(value, decimals).as_bytes());
 }
 
-fn push_digits(buf: &mut Vec<u8>, mut n: u64) {
-    let mut tmp = [0u8; 20];
-    let mut i = tmp.len();
-    loop {
-        i -= 1;
-        tmp[i] = b'0' + (n % 10) as u8;
-        n /= 10;
-        if n == 0 {
-            break;
-        }
+/// Appends `n / unit` with `decimals` decimals (`unit` = 10^decimals,
+/// decimals < 10, |n| < 10^13): at most 25 bytes, written in place.
+fn push_scaled(buf: &mut Vec<u8>, n: i64, unit: u64, decimals: usize) {
+    const PAIRS: &[u8; 200] = b"0001020304050607080910111213141516171819\
+2021222324252627282930313233343536373839\
+4041424344454647484950515253545556575859\
+6061626364656667686970717273747576777879\
+8081828384858687888990919293949596979899";
+    let start = buf.len();
+    // A fixed-size extension compiles to a few stores; the unused tail is
+    // cut off below.
+    buf.extend_from_slice(&[b'0'; 32]);
+    let out = &mut buf[start..start + 32];
+    let mut len = 0;
+    if n < 0 {
+        out[0] = b'-';
+        len = 1;
     }
-    buf.extend_from_slice(&tmp[i..]);
+    let n = n.unsigned_abs();
+    let (mut int, mut frac) = (n / unit, n % unit);
+    // Integer digits, counted, then written right to left.
+    let mut digits = 1;
+    let mut x = int;
+    while x >= 10 {
+        x /= 10;
+        digits += 1;
+    }
+    let mut i = len + digits;
+    while int >= 100 {
+        let d = (int % 100) as usize * 2;
+        int /= 100;
+        out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+        i -= 2;
+    }
+    if int >= 10 {
+        let d = int as usize * 2;
+        out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+    } else {
+        out[i - 1] = b'0' + int as u8;
+    }
+    len += digits;
+    if decimals > 0 {
+        out[len] = b'.';
+        let mut i = len + 1 + decimals;
+        let mut left = decimals;
+        while left >= 2 {
+            let d = (frac % 100) as usize * 2;
+            frac /= 100;
+            out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+            i -= 2;
+            left -= 2;
+        }
+        if left == 1 {
+            out[i - 1] = b'0' + (frac % 10) as u8;
+        }
+        len += 1 + decimals;
+    }
+    buf.truncate(start + len);
 }
 
 /// Quotes a field if it needs it.
@@ -783,6 +838,16 @@ mod tests {
             let mut buf = Vec::new();
             push_fixed(&mut buf, v, d);
             proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), fixed(v, d));
+        }
+
+        #[test]
+        fn large_and_tiny_values_are_written_as_the_exact_formatter_writes(
+            v in proptest::prop_oneof![-1.0e13f64..1.0e13, -1.0f64..1.0],
+            d in 0usize..12,
+        ) {
+            let mut buf = b"x".to_vec();
+            push_fixed(&mut buf, v, d);
+            proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), format!("x{}", fixed(v, d)));
         }
     }
 
