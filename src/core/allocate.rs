@@ -183,31 +183,46 @@ impl SourceValues {
         }
     }
 
-    /// From values laid out period by period (index
-    /// `(period · sources + source) · columns + column`, NaN for missing), as
+    /// From values laid out column by column and, within a column, period
+    /// by period (index `period · sources + source`, NaN for missing), as
     /// rows of a table usually come; rearranged source by source in
-    /// cache-sized blocks.
+    /// cache-sized blocks, blocks of sources in parallel.
     pub fn from_period_major(
         periods: usize,
         sources: usize,
-        columns: usize,
-        by_period: &[f64],
+        by_column: &[Vec<f64>],
     ) -> SourceValues {
-        let mut v = SourceValues::new(periods, sources, columns);
+        let columns = by_column.len();
+        // Zeroed memory is mapped lazily, so its pages are first touched by
+        // the workers that fill them; every value is written below.
+        let mut values = vec![0.0; periods * sources * columns];
         const BLOCK: usize = 64;
-        for p0 in (0..periods).step_by(BLOCK) {
-            for s0 in (0..sources).step_by(BLOCK) {
-                for s in s0..(s0 + BLOCK).min(sources) {
-                    for p in p0..(p0 + BLOCK).min(periods) {
-                        let from = (p * sources + s) * columns;
-                        let to = (s * periods + p) * columns;
-                        v.values[to..to + columns]
-                            .copy_from_slice(&by_period[from..from + columns]);
+        let per_source = periods * columns;
+        if per_source > 0 {
+            values
+                .par_chunks_mut(per_source * BLOCK)
+                .enumerate()
+                .for_each(|(b, out)| {
+                    let s0 = b * BLOCK;
+                    let n = out.len() / per_source;
+                    for p0 in (0..periods).step_by(BLOCK) {
+                        for ds in 0..n {
+                            let s = s0 + ds;
+                            for (c, column) in by_column.iter().enumerate() {
+                                for p in p0..(p0 + BLOCK).min(periods) {
+                                    out[(ds * periods + p) * columns + c] = column[p * sources + s];
+                                }
+                            }
+                        }
                     }
-                }
-            }
+                });
         }
-        v
+        SourceValues {
+            periods,
+            sources,
+            columns,
+            values,
+        }
     }
 
     /// Number of periods.

@@ -355,6 +355,24 @@ const NONE: u32 = u32::MAX;
 impl DataTable {
     /// Numbers each row's code and period (one pass).
     pub fn index(&self) -> Indexed {
+        // Codes and periods are numbered independently, one on each core.
+        let ((codes, code_rows, row_code, missing_code), (periods, row_period, missing_period)) =
+            rayon::join(|| self.index_codes(), || self.index_periods());
+        Indexed {
+            codes,
+            code_rows,
+            periods,
+            row_code,
+            row_period,
+            missing_code,
+            missing_period,
+        }
+    }
+
+    /// Distinct codes, their rows and first line, each row's code id, and
+    /// the rows with no code.
+    #[allow(clippy::type_complexity)]
+    fn index_codes(&self) -> (Vec<RawCode>, Vec<(u64, u64)>, Vec<u32>, (u64, u64)) {
         let n = self.rows;
         let mut code_ids: FastMap<(Option<&str>, &str), u32> = FastMap::default();
         let mut codes: Vec<RawCode> = Vec::new();
@@ -392,6 +410,13 @@ impl DataTable {
             code_rows[id as usize].0 += 1;
             row_code.push(id);
         }
+        (codes, code_rows, row_code, missing_code)
+    }
+
+    /// Distinct periods (sorted), each row's period id, and the rows with
+    /// no period.
+    fn index_periods(&self) -> (Vec<String>, Vec<u32>, (u64, u64)) {
+        let n = self.rows;
         let mut period_ids: FastMap<&str, u32> = FastMap::default();
         let mut periods: Vec<String> = Vec::new();
         let mut row_period = Vec::with_capacity(n);
@@ -440,15 +465,7 @@ impl DataTable {
                 periods = order.iter().map(|&i| periods[i as usize].clone()).collect();
             }
         }
-        Indexed {
-            codes,
-            code_rows,
-            periods,
-            row_code,
-            row_period,
-            missing_code,
-            missing_period,
-        }
+        (periods, row_period, missing_period)
     }
 
     /// Adds each row's values into the cell of its source and period.
@@ -456,8 +473,6 @@ impl DataTable {
     /// code, or `None` (the rows are reported elsewhere).
     pub fn fold(&self, indexed: &Indexed, source_of: &[Option<u32>], sources: usize) -> Folded {
         let periods = indexed.periods.len();
-        let columns = self.values.len();
-        let mut by_period = vec![f64::NAN; periods * sources * columns];
         let mut rows = vec![0u32; periods * sources];
         let mut first = vec![0u32; periods * sources];
         // Each row's cell, or NONE when its code or period is missing or
@@ -481,15 +496,31 @@ impl DataTable {
             }
             cells.push(cell as u32);
         }
-        for (col, ca) in self.values.iter().enumerate() {
-            for (v, &cell) in ca.iter().zip(&cells) {
-                if let (Some(v), true) = (v, cell != NONE) {
-                    let x = &mut by_period[cell as usize * columns + col];
-                    *x = if x.is_nan() { v } else { *x + v };
+        // Column by column, in parallel; within a column, rows in order.
+        let by_column: Vec<Vec<f64>> = self
+            .values
+            .par_iter()
+            .map(|ca| {
+                let mut sums = vec![f64::NAN; periods * sources];
+                // Array by array: the values as a slice, nulls from the bitmap.
+                let mut row = 0;
+                for array in ca.downcast_iter() {
+                    let values: &[f64] = array.values();
+                    let cells = &cells[row..row + values.len()];
+                    let validity = array.validity().filter(|b| b.unset_bits() > 0);
+                    for (j, (&v, &cell)) in values.iter().zip(cells).enumerate() {
+                        if cell == NONE || validity.is_some_and(|b| !b.get_bit(j)) {
+                            continue;
+                        }
+                        let x = &mut sums[cell as usize];
+                        *x = if x.is_nan() { v } else { *x + v };
+                    }
+                    row += values.len();
                 }
-            }
-        }
-        let values = SourceValues::from_period_major(periods, sources, columns, &by_period);
+                sums
+            })
+            .collect();
+        let values = SourceValues::from_period_major(periods, sources, &by_column);
         Folded {
             values,
             rows,
@@ -676,18 +707,6 @@ fn format_targets(
 /// decimals take the exact formatter.
 fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
     const POW10: [f64; 10] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
-    const UNIT: [u64; 10] = [
-        1,
-        10,
-        100,
-        1_000,
-        10_000,
-        100_000,
-        1_000_000,
-        10_000_000,
-        100_000_000,
-        1_000_000_000,
-    ];
     if decimals < POW10.len() {
         let scaled = value * POW10[decimals];
         if scaled.abs() < 1e12 {
@@ -706,7 +725,20 @@ fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
                 } else {
                     whole
                 };
-                push_scaled(buf, n, UNIT[decimals], decimals);
+                // One copy per number of decimals, so the divisions are
+                // by constants.
+                match decimals {
+                    0 => push_scaled::<0>(buf, n),
+                    1 => push_scaled::<1>(buf, n),
+                    2 => push_scaled::<2>(buf, n),
+                    3 => push_scaled::<3>(buf, n),
+                    4 => push_scaled::<4>(buf, n),
+                    5 => push_scaled::<5>(buf, n),
+                    6 => push_scaled::<6>(buf, n),
+                    7 => push_scaled::<7>(buf, n),
+                    8 => push_scaled::<8>(buf, n),
+                    _ => push_scaled::<9>(buf, n),
+                }
                 return;
             }
         }
@@ -714,9 +746,11 @@ fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
     buf.extend_from_slice(fixed(value, decimals).as_bytes());
 }
 
-/// Appends `n / unit` with `decimals` decimals (`unit` = 10^decimals,
-/// decimals < 10, |n| < 10^13): at most 25 bytes, written in place.
-fn push_scaled(buf: &mut Vec<u8>, n: i64, unit: u64, decimals: usize) {
+/// Appends `n / 10^D` with `D` decimals (D < 10, |n| < 10^13): at most
+/// 25 bytes, written in place.
+fn push_scaled<const D: usize>(buf: &mut Vec<u8>, n: i64) {
+    let unit = 10u64.pow(D as u32);
+    let decimals = D;
     const PAIRS: &[u8; 200] = b"0001020304050607080910111213141516171819\
 2021222324252627282930313233343536373839\
 4041424344454647484950515253545556575859\
