@@ -201,19 +201,14 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     };
     let text = |name: &String| -> Result<StringChunked> {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        Ok(c.str()
-            .map_err(|e| polars_error(path, e))?
-            .rechunk()
-            .into_owned())
+        // Left in the chunks the reader made (folding walks them in order):
+        // joining them would copy every column.
+        Ok(c.str().map_err(|e| polars_error(path, e))?.clone())
     };
     let mut values = Vec::new();
     for name in &spec.value_columns {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        let ca = c
-            .f64()
-            .map_err(|e| polars_error(path, e))?
-            .rechunk()
-            .into_owned();
+        let ca = c.f64().map_err(|e| polars_error(path, e))?.clone();
         // Infinite or NaN values (written "inf", "NaN") are not data.
         if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
             return Err(Error::input(
@@ -262,7 +257,7 @@ fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<Dat
         .with_columns(Some(Arc::from(names)))
         .with_schema_overwrite(Some(Arc::new(Schema::from_iter(fields))))
         .with_parse_options(parse)
-        .with_rechunk(true)
+        .with_rechunk(false)
         .try_into_reader_with_file_path(Some(spec.path.clone()))?
         .finish()
 }
