@@ -183,31 +183,46 @@ impl SourceValues {
         }
     }
 
-    /// From values laid out period by period (index
-    /// `(period · sources + source) · columns + column`, NaN for missing), as
+    /// From values laid out column by column and, within a column, period
+    /// by period (index `period · sources + source`, NaN for missing), as
     /// rows of a table usually come; rearranged source by source in
-    /// cache-sized blocks.
+    /// cache-sized blocks, blocks of sources in parallel.
     pub fn from_period_major(
         periods: usize,
         sources: usize,
-        columns: usize,
-        by_period: &[f64],
+        by_column: &[Vec<f64>],
     ) -> SourceValues {
-        let mut v = SourceValues::new(periods, sources, columns);
+        let columns = by_column.len();
+        // Zeroed memory is mapped lazily, so its pages are first touched by
+        // the workers that fill them; every value is written below.
+        let mut values = vec![0.0; periods * sources * columns];
         const BLOCK: usize = 64;
-        for p0 in (0..periods).step_by(BLOCK) {
-            for s0 in (0..sources).step_by(BLOCK) {
-                for s in s0..(s0 + BLOCK).min(sources) {
-                    for p in p0..(p0 + BLOCK).min(periods) {
-                        let from = (p * sources + s) * columns;
-                        let to = (s * periods + p) * columns;
-                        v.values[to..to + columns]
-                            .copy_from_slice(&by_period[from..from + columns]);
+        let per_source = periods * columns;
+        if per_source > 0 {
+            values
+                .par_chunks_mut(per_source * BLOCK)
+                .enumerate()
+                .for_each(|(b, out)| {
+                    let s0 = b * BLOCK;
+                    let n = out.len() / per_source;
+                    for p0 in (0..periods).step_by(BLOCK) {
+                        for ds in 0..n {
+                            let s = s0 + ds;
+                            for (c, column) in by_column.iter().enumerate() {
+                                for p in p0..(p0 + BLOCK).min(periods) {
+                                    out[(ds * periods + p) * columns + c] = column[p * sources + s];
+                                }
+                            }
+                        }
                     }
-                }
-            }
+                });
         }
-        v
+        SourceValues {
+            periods,
+            sources,
+            columns,
+            values,
+        }
     }
 
     /// Number of periods.
@@ -366,42 +381,55 @@ pub fn allocate_range(
     let m = spec.measures.len();
     let first_target = targets.start;
     let count = targets.len();
-    let per_target: Vec<(Vec<Estimate>, Vec<usize>)> = targets
-        .into_par_iter()
-        .map(|t| {
-            let links = plan.links_of(t);
-            // Sums for every (period, measure), filled link by link so each
-            // source's periods are read in order.
-            let mut sums = vec![Sums::default(); periods * m];
-            for l in links {
+    let width = periods * m;
+    let mut estimates = vec![
+        Estimate {
+            value: None,
+            coverage: 0.0,
+        };
+        count * width
+    ];
+    // Each target fills its own slice of the result; the sums are scratch
+    // space reused from target to target (one buffer per worker).
+    let per_target: Vec<Vec<usize>> = if width == 0 {
+        vec![Vec::new(); count]
+    } else {
+        estimates
+            .par_chunks_mut(width)
+            .enumerate()
+            .map_init(Vec::new, |sums: &mut Vec<Sums>, (i, out)| {
+                let links = plan.links_of(first_target + i);
+                // Sums for every (period, measure), filled link by link so
+                // each source's periods are read in order.
+                sums.clear();
+                sums.resize(width, Sums::default());
+                for l in links {
+                    for p in 0..periods {
+                        for (k, measure) in spec.measures.iter().enumerate() {
+                            add_link(&mut sums[p * m + k], l, values, p, *measure);
+                        }
+                    }
+                }
+                let mut overlaps = Vec::new();
                 for p in 0..periods {
+                    let mut overlap = false;
                     for (k, measure) in spec.measures.iter().enumerate() {
-                        add_link(&mut sums[p * m + k], l, values, p, *measure);
+                        let s = &sums[p * m + k];
+                        if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
+                            overlap = true;
+                        }
+                        out[p * m + k] = finish(s, *measure, spec.min_coverage);
+                    }
+                    if overlap {
+                        overlaps.push(p);
                     }
                 }
-            }
-            let mut out = Vec::with_capacity(periods * m);
-            let mut overlaps = Vec::new();
-            for p in 0..periods {
-                let mut overlap = false;
-                for (k, measure) in spec.measures.iter().enumerate() {
-                    let s = &sums[p * m + k];
-                    if s.active[0] && s.active[1] && s.known_share > 1.0 + SHARE_SLACK {
-                        overlap = true;
-                    }
-                    out.push(finish(s, *measure, spec.min_coverage));
-                }
-                if overlap {
-                    overlaps.push(p);
-                }
-            }
-            (out, overlaps)
-        })
-        .collect();
-    let mut estimates = Vec::with_capacity(count * periods * m);
+                overlaps
+            })
+            .collect()
+    };
     let mut overlaps = Vec::new();
-    for (i, (e, o)) in per_target.into_iter().enumerate() {
-        estimates.extend(e);
+    for (i, o) in per_target.into_iter().enumerate() {
         overlaps.extend(o.into_iter().map(|p| (first_target + i, p)));
     }
     Allocation {

@@ -201,19 +201,14 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     };
     let text = |name: &String| -> Result<StringChunked> {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        Ok(c.str()
-            .map_err(|e| polars_error(path, e))?
-            .rechunk()
-            .into_owned())
+        // Left in the chunks the reader made (folding walks them in order):
+        // joining them would copy every column.
+        Ok(c.str().map_err(|e| polars_error(path, e))?.clone())
     };
     let mut values = Vec::new();
     for name in &spec.value_columns {
         let c = df.column(name).map_err(|e| polars_error(path, e))?;
-        let ca = c
-            .f64()
-            .map_err(|e| polars_error(path, e))?
-            .rechunk()
-            .into_owned();
+        let ca = c.f64().map_err(|e| polars_error(path, e))?.clone();
         // Infinite or NaN values (written "inf", "NaN") are not data.
         if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
             return Err(Error::input(
@@ -262,7 +257,7 @@ fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<Dat
         .with_columns(Some(Arc::from(names)))
         .with_schema_overwrite(Some(Arc::new(Schema::from_iter(fields))))
         .with_parse_options(parse)
-        .with_rechunk(true)
+        .with_rechunk(false)
         .try_into_reader_with_file_path(Some(spec.path.clone()))?
         .finish()
 }
@@ -355,6 +350,24 @@ const NONE: u32 = u32::MAX;
 impl DataTable {
     /// Numbers each row's code and period (one pass).
     pub fn index(&self) -> Indexed {
+        // Codes and periods are numbered independently, one on each core.
+        let ((codes, code_rows, row_code, missing_code), (periods, row_period, missing_period)) =
+            rayon::join(|| self.index_codes(), || self.index_periods());
+        Indexed {
+            codes,
+            code_rows,
+            periods,
+            row_code,
+            row_period,
+            missing_code,
+            missing_period,
+        }
+    }
+
+    /// Distinct codes, their rows and first line, each row's code id, and
+    /// the rows with no code.
+    #[allow(clippy::type_complexity)]
+    fn index_codes(&self) -> (Vec<RawCode>, Vec<(u64, u64)>, Vec<u32>, (u64, u64)) {
         let n = self.rows;
         let mut code_ids: FastMap<(Option<&str>, &str), u32> = FastMap::default();
         let mut codes: Vec<RawCode> = Vec::new();
@@ -392,6 +405,13 @@ impl DataTable {
             code_rows[id as usize].0 += 1;
             row_code.push(id);
         }
+        (codes, code_rows, row_code, missing_code)
+    }
+
+    /// Distinct periods (sorted), each row's period id, and the rows with
+    /// no period.
+    fn index_periods(&self) -> (Vec<String>, Vec<u32>, (u64, u64)) {
+        let n = self.rows;
         let mut period_ids: FastMap<&str, u32> = FastMap::default();
         let mut periods: Vec<String> = Vec::new();
         let mut row_period = Vec::with_capacity(n);
@@ -440,15 +460,7 @@ impl DataTable {
                 periods = order.iter().map(|&i| periods[i as usize].clone()).collect();
             }
         }
-        Indexed {
-            codes,
-            code_rows,
-            periods,
-            row_code,
-            row_period,
-            missing_code,
-            missing_period,
-        }
+        (periods, row_period, missing_period)
     }
 
     /// Adds each row's values into the cell of its source and period.
@@ -456,8 +468,6 @@ impl DataTable {
     /// code, or `None` (the rows are reported elsewhere).
     pub fn fold(&self, indexed: &Indexed, source_of: &[Option<u32>], sources: usize) -> Folded {
         let periods = indexed.periods.len();
-        let columns = self.values.len();
-        let mut by_period = vec![f64::NAN; periods * sources * columns];
         let mut rows = vec![0u32; periods * sources];
         let mut first = vec![0u32; periods * sources];
         // Each row's cell, or NONE when its code or period is missing or
@@ -481,15 +491,31 @@ impl DataTable {
             }
             cells.push(cell as u32);
         }
-        for (col, ca) in self.values.iter().enumerate() {
-            for (v, &cell) in ca.iter().zip(&cells) {
-                if let (Some(v), true) = (v, cell != NONE) {
-                    let x = &mut by_period[cell as usize * columns + col];
-                    *x = if x.is_nan() { v } else { *x + v };
+        // Column by column, in parallel; within a column, rows in order.
+        let by_column: Vec<Vec<f64>> = self
+            .values
+            .par_iter()
+            .map(|ca| {
+                let mut sums = vec![f64::NAN; periods * sources];
+                // Array by array: the values as a slice, nulls from the bitmap.
+                let mut row = 0;
+                for array in ca.downcast_iter() {
+                    let values: &[f64] = array.values();
+                    let cells = &cells[row..row + values.len()];
+                    let validity = array.validity().filter(|b| b.unset_bits() > 0);
+                    for (j, (&v, &cell)) in values.iter().zip(cells).enumerate() {
+                        if cell == NONE || validity.is_some_and(|b| !b.get_bit(j)) {
+                            continue;
+                        }
+                        let x = &mut sums[cell as usize];
+                        *x = if x.is_nan() { v } else { *x + v };
+                    }
+                    row += values.len();
                 }
-            }
-        }
-        let values = SourceValues::from_period_major(periods, sources, columns, &by_period);
+                sums
+            })
+            .collect();
+        let values = SourceValues::from_period_major(periods, sources, &by_column);
         Folded {
             values,
             rows,
@@ -578,53 +604,96 @@ pub fn write_results(
     // both cores busy.
     let chunk = (20_000 / periods.len().max(1)).clamp(1, 1024);
     const CHUNK_PER_BATCH: usize = 32;
-    let chunks: Vec<usize> = (0..targets.div_ceil(chunk)).collect();
-    for batch in chunks.chunks(CHUNK_PER_BATCH) {
-        let (Some(&first), Some(&last)) = (batch.first(), batch.last()) else {
-            continue;
-        };
-        let allocation = allocate(first * chunk..((last + 1) * chunk).min(targets));
-        let buffers: Vec<Vec<u8>> = batch
-            .par_iter()
-            .map(|&c| {
-                let mut buf = Vec::new();
-                for t in c * chunk..((c + 1) * chunk).min(targets) {
-                    let code = csv_field(&plan.targets[t]);
-                    let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
-                    for (p, period) in periods.iter().enumerate() {
-                        buf.extend_from_slice(code.as_bytes());
-                        if let Some(n) = &name {
-                            buf.push(b',');
-                            buf.extend_from_slice(n.as_bytes());
-                        }
-                        if layout.with_period {
-                            buf.push(b',');
-                            buf.extend_from_slice(csv_field(period).as_bytes());
-                        }
-                        for (m, e) in allocation.row(t, p).iter().enumerate() {
-                            buf.push(b',');
-                            if let Some(v) = e.value {
-                                push_fixed(&mut buf, v, layout.decimals);
-                            }
-                            buf.push(b',');
-                            push_fixed(&mut buf, e.coverage, COVERAGE_DECIMALS);
-                            if let Some((_, note)) = &layout.notes[m] {
-                                buf.push(b',');
-                                buf.extend_from_slice(csv_field(note).as_bytes());
-                            }
-                        }
-                        buf.push(b'\n');
-                    }
+    let batches: Vec<Range<usize>> = (0..targets.div_ceil(chunk))
+        .step_by(CHUNK_PER_BATCH)
+        .map(|c| c * chunk..((c + CHUNK_PER_BATCH) * chunk).min(targets))
+        .collect();
+    let period_fields: Vec<std::borrow::Cow<'_, str>> =
+        periods.iter().map(|p| csv_field(p)).collect();
+    // Batches are allocated and formatted on another thread (lines in
+    // parallel) while this one writes the previous batch; the buffers go
+    // back and forth, so they are allocated once.
+    let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<(Allocation, Vec<Vec<u8>>)>(1);
+    let (empty_tx, empty_rx) = std::sync::mpsc::channel::<Vec<Vec<u8>>>();
+    std::thread::scope(|scope| -> std::io::Result<()> {
+        let producer = scope.spawn(move || {
+            for range in batches {
+                let allocation = allocate(range.clone());
+                let mut buffers = empty_rx.try_recv().unwrap_or_default();
+                let starts: Vec<usize> = range.clone().step_by(chunk).collect();
+                buffers.resize_with(starts.len(), Vec::new);
+                buffers
+                    .par_iter_mut()
+                    .zip(&starts)
+                    .for_each(|(buf, &start)| {
+                        buf.clear();
+                        let end = (start + chunk).min(range.end);
+                        format_targets(buf, plan, &period_fields, &allocation, start..end, layout);
+                    });
+                if full_tx.send((allocation, buffers)).is_err() {
+                    // The writer stopped (a write failed): nothing more to do.
+                    return;
                 }
-                buf
-            })
-            .collect();
-        for b in buffers {
-            w.write_all(&b)?;
+            }
+        });
+        let mut result = Ok(());
+        for (allocation, buffers) in full_rx.iter() {
+            if result.is_ok() {
+                result = buffers.iter().try_for_each(|b| w.write_all(b));
+                if result.is_ok() {
+                    seen(&allocation);
+                }
+            }
+            if result.is_err() {
+                break;
+            }
+            let _ = empty_tx.send(buffers);
         }
-        seen(&allocation);
+        drop(full_rx);
+        if let Err(panic) = producer.join() {
+            std::panic::resume_unwind(panic);
+        }
+        result
+    })
+}
+
+/// Formats the result lines of targets `range` (all periods) into `buf`.
+fn format_targets(
+    buf: &mut Vec<u8>,
+    plan: &Plan,
+    period_fields: &[std::borrow::Cow<'_, str>],
+    allocation: &Allocation,
+    range: Range<usize>,
+    layout: &ResultLayout,
+) {
+    for t in range {
+        let code = csv_field(&plan.targets[t]);
+        let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
+        for (p, period) in period_fields.iter().enumerate() {
+            buf.extend_from_slice(code.as_bytes());
+            if let Some(n) = &name {
+                buf.push(b',');
+                buf.extend_from_slice(n.as_bytes());
+            }
+            if layout.with_period {
+                buf.push(b',');
+                buf.extend_from_slice(period.as_bytes());
+            }
+            for (m, e) in allocation.row(t, p).iter().enumerate() {
+                buf.push(b',');
+                if let Some(v) = e.value {
+                    push_fixed(buf, v, layout.decimals);
+                }
+                buf.push(b',');
+                push_fixed(buf, e.coverage, COVERAGE_DECIMALS);
+                if let Some((_, note)) = &layout.notes[m] {
+                    buf.push(b',');
+                    buf.extend_from_slice(csv_field(note).as_bytes());
+                }
+            }
+            buf.push(b'\n');
+        }
     }
-    Ok(())
 }
 
 /// Appends `value` with a fixed number of decimals, the same bytes as
@@ -635,45 +704,103 @@ fn push_fixed(buf: &mut Vec<u8>, value: f64, decimals: usize) {
     const POW10: [f64; 10] = [1.0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
     if decimals < POW10.len() {
         let scaled = value * POW10[decimals];
-        // Below 1e12 the scaled value is within 2^-12 of the exact product,
-        // so unless its fraction is near one half it rounds the same way.
-        if scaled.abs() < 1e12 && (scaled.fract().abs() - 0.5).abs() > 1e-3 {
-            let n = scaled.round() as i64;
-            if n < 0 {
-                buf.push(b'-');
-            }
-            let n = n.unsigned_abs();
-            let unit = POW10[decimals] as u64;
-            push_digits(buf, n / unit);
-            if decimals > 0 {
-                buf.push(b'.');
-                let frac = n % unit;
-                let mut digits = [b'0'; 9];
-                let mut f = frac;
-                for i in (0..decimals).rev() {
-                    digits[i] = b'0' + (f % 10) as u8;
-                    f /= 10;
+        if scaled.abs() < 1e12 {
+            // Integer part and fraction of `scaled` (exact below 2^52),
+            // without calling the C library's trunc and round.
+            let whole = scaled as i64;
+            let fraction = scaled - whole as f64;
+            // Below 1e12 the scaled value is within 2^-12 of the exact
+            // product, so unless its fraction is near one half it rounds
+            // the same way.
+            if (fraction.abs() - 0.5).abs() > 1e-3 {
+                let n = if fraction >= 0.5 {
+                    whole + 1
+                } else if fraction <= -0.5 {
+                    whole - 1
+                } else {
+                    whole
+                };
+                // One copy per number of decimals, so the divisions are
+                // by constants.
+                match decimals {
+                    0 => push_scaled::<0>(buf, n),
+                    1 => push_scaled::<1>(buf, n),
+                    2 => push_scaled::<2>(buf, n),
+                    3 => push_scaled::<3>(buf, n),
+                    4 => push_scaled::<4>(buf, n),
+                    5 => push_scaled::<5>(buf, n),
+                    6 => push_scaled::<6>(buf, n),
+                    7 => push_scaled::<7>(buf, n),
+                    8 => push_scaled::<8>(buf, n),
+                    _ => push_scaled::<9>(buf, n),
                 }
-                buf.extend_from_slice(&digits[..decimals]);
+                return;
             }
-            return;
         }
     }
     buf.extend_from_slice(fixed(value, decimals).as_bytes());
 }
 
-fn push_digits(buf: &mut Vec<u8>, mut n: u64) {
-    let mut tmp = [0u8; 20];
-    let mut i = tmp.len();
-    loop {
-        i -= 1;
-        tmp[i] = b'0' + (n % 10) as u8;
-        n /= 10;
-        if n == 0 {
-            break;
-        }
+/// Appends `n / 10^D` with `D` decimals (D < 10, |n| < 10^13): at most
+/// 25 bytes, written in place.
+fn push_scaled<const D: usize>(buf: &mut Vec<u8>, n: i64) {
+    let unit = 10u64.pow(D as u32);
+    let decimals = D;
+    const PAIRS: &[u8; 200] = b"0001020304050607080910111213141516171819\
+2021222324252627282930313233343536373839\
+4041424344454647484950515253545556575859\
+6061626364656667686970717273747576777879\
+8081828384858687888990919293949596979899";
+    let start = buf.len();
+    // A fixed-size extension compiles to a few stores; the unused tail is
+    // cut off below.
+    buf.extend_from_slice(&[b'0'; 32]);
+    let out = &mut buf[start..start + 32];
+    let mut len = 0;
+    if n < 0 {
+        out[0] = b'-';
+        len = 1;
     }
-    buf.extend_from_slice(&tmp[i..]);
+    let n = n.unsigned_abs();
+    let (mut int, mut frac) = (n / unit, n % unit);
+    // Integer digits, counted, then written right to left.
+    let mut digits = 1;
+    let mut x = int;
+    while x >= 10 {
+        x /= 10;
+        digits += 1;
+    }
+    let mut i = len + digits;
+    while int >= 100 {
+        let d = (int % 100) as usize * 2;
+        int /= 100;
+        out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+        i -= 2;
+    }
+    if int >= 10 {
+        let d = int as usize * 2;
+        out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+    } else {
+        out[i - 1] = b'0' + int as u8;
+    }
+    len += digits;
+    if decimals > 0 {
+        out[len] = b'.';
+        let mut i = len + 1 + decimals;
+        let mut left = decimals;
+        while left >= 2 {
+            let d = (frac % 100) as usize * 2;
+            frac /= 100;
+            out[i - 2..i].copy_from_slice(&PAIRS[d..d + 2]);
+            i -= 2;
+            left -= 2;
+        }
+        if left == 1 {
+            out[i - 1] = b'0' + (frac % 10) as u8;
+        }
+        len += 1 + decimals;
+    }
+    buf.truncate(start + len);
 }
 
 /// Quotes a field if it needs it.
@@ -740,6 +867,16 @@ mod tests {
             let mut buf = Vec::new();
             push_fixed(&mut buf, v, d);
             proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), fixed(v, d));
+        }
+
+        #[test]
+        fn large_and_tiny_values_are_written_as_the_exact_formatter_writes(
+            v in proptest::prop_oneof![-1.0e13f64..1.0e13, -1.0f64..1.0],
+            d in 0usize..12,
+        ) {
+            let mut buf = b"x".to_vec();
+            push_fixed(&mut buf, v, d);
+            proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), format!("x{}", fixed(v, d)));
         }
     }
 
