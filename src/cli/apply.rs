@@ -76,8 +76,8 @@ pub struct Args {
     /// Decimals written for values.
     #[arg(long, default_value_t = 6)]
     pub decimals: usize,
-    /// Field separator of the data (detected from the header line if not given); `tab` for a tab.
-    #[arg(long)]
+    /// Field delimiter of the data (detected from the header line if not given); `tab` for a tab.
+    #[arg(long = "delimiter", alias = "separator", value_name = "C")]
     pub separator: Option<String>,
     /// A text meaning "no value" besides an empty field (repeatable).
     #[arg(long, default_value = "NA")]
@@ -254,7 +254,7 @@ fn parse_separator(text: &Option<String>) -> Result<Option<u8>> {
         Some("tab") | Some("\\t") | Some("\t") => Ok(Some(b'\t')),
         Some(s) if s.len() == 1 && s.is_ascii() => Ok(Some(s.as_bytes()[0])),
         Some(s) => Err(Error::Usage(format!(
-            "--separator {s:?}: give one character, or `tab`"
+            "--delimiter {s:?}: give one character, or `tab`"
         ))),
     }
 }
