@@ -8,6 +8,8 @@
 //! those is taken too, the command stops with an error naming the column).
 
 use std::collections::HashMap;
+
+use rayon::prelude::*;
 use std::io::Write;
 use std::path::PathBuf;
 
@@ -376,10 +378,16 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     }
     let added = added_columns(&table)?;
 
-    // Resolve each distinct (name, state) once.
+    // Collect each distinct (name, state[, vintage]) once, in input order.
+    struct Pending<'t> {
+        name: &'t str,
+        state: &'t str,
+        vintage: u16,
+        rows: u64,
+    }
     let progress = Progress::new(table.len() as u64, "matching", global.quiet);
     let mut index: HashMap<String, u32> = HashMap::new();
-    let mut distinct: Vec<Distinct> = Vec::new();
+    let mut pending: Vec<Pending> = Vec::new();
     let mut row_of: Vec<u32> = Vec::with_capacity(table.len());
     let mut k = String::new();
     for (i, record) in table.records.iter().enumerate() {
@@ -390,7 +398,6 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             None => config.vintage,
         };
         pair_key(&mut k, name, state);
-        let decision = decisions.get(k.as_str());
         if vintage_col.is_some() {
             k.push('\u{1f}');
             k.push_str(&vintage.to_string());
@@ -398,37 +405,60 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         let id = match index.get(k.as_str()) {
             Some(&id) => id,
             None => {
-                let found = matchers
-                    .get(vintage)
-                    .resolve(name, state_col.map(|_| state));
-                let (resolution, matcher_said, decided) = match decision {
-                    Some(d) => (
-                        decide(&mut matchers, vintage, d, vintage_col.is_some())?,
-                        Some(found),
-                        true,
-                    ),
-                    None => (found, None, false),
-                };
-                let id = distinct.len() as u32;
-                distinct.push(Distinct {
-                    name: name.trim().to_string(),
-                    state: state.trim().to_string(),
+                let id = pending.len() as u32;
+                pending.push(Pending {
+                    name,
+                    state,
+                    vintage,
                     rows: 0,
-                    resolution,
-                    matcher: matcher_said,
-                    decided,
                 });
                 index.insert(k.clone(), id);
                 id
             }
         };
-        distinct[id as usize].rows += 1;
+        pending[id as usize].rows += 1;
         row_of.push(id);
-        if i % 65_536 == 65_535 {
-            progress.inc(65_536);
-        }
     }
+
+    // Resolve the distinct names on every core; the result does not depend
+    // on the thread count (each name is resolved alone, results kept in
+    // input order).
+    let vintages: std::collections::BTreeSet<u16> = pending.iter().map(|p| p.vintage).collect();
+    for v in vintages {
+        matchers.get(v);
+    }
+    let ready = &matchers.built;
+    let found: Vec<Resolution> = pending
+        .par_iter()
+        .map(|p| {
+            let r = ready[&p.vintage].resolve(p.name, state_col.map(|_| p.state));
+            progress.inc(p.rows);
+            r
+        })
+        .collect();
     progress.finish();
+
+    // Decisions win over what the matcher said.
+    let mut distinct: Vec<Distinct> = Vec::with_capacity(pending.len());
+    for (p, found) in pending.iter().zip(found) {
+        pair_key(&mut k, p.name, p.state);
+        let (resolution, matcher_said, decided) = match decisions.get(k.as_str()) {
+            Some(d) => (
+                decide(&mut matchers, p.vintage, d, vintage_col.is_some())?,
+                Some(found),
+                true,
+            ),
+            None => (found, None, false),
+        };
+        distinct.push(Distinct {
+            name: p.name.trim().to_string(),
+            state: p.state.trim().to_string(),
+            rows: p.rows,
+            resolution,
+            matcher: matcher_said,
+            decided,
+        });
+    }
 
     // The added fields of each distinct pair, formatted once.
     let fields: Vec<[String; 7]> = distinct
