@@ -5,8 +5,8 @@ use std::path::Path;
 
 use serde_json::Value;
 
-use super::{json_ring, key_text, resolve_keys, Layer, LayerRequest};
-use crate::core::overlay::{RawFeature, Ring, RingConvention};
+use super::{json_ring, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
 /// Reads a parsed FeatureCollection.
@@ -43,16 +43,7 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
             .and_then(|p| p.get(field))
             .and_then(key_text)
     })?;
-    let features = keys
-        .into_iter()
-        .zip(polygons)
-        .enumerate()
-        .map(|(i, (key, polygons))| RawFeature {
-            number: i as u64 + 1,
-            key,
-            polygons,
-        })
-        .collect();
+    let features = raw_features(keys, polygons);
     Ok(Layer {
         path: path.to_path_buf(),
         sha256,

@@ -83,6 +83,20 @@ pub struct Layer {
     pub convention: RingConvention,
 }
 
+/// Pairs each feature's key with its polygons, numbering features from 1
+/// in file order (the number every message uses).
+pub fn raw_features(keys: Vec<String>, polygons: Vec<Vec<Vec<Ring>>>) -> Vec<RawFeature> {
+    keys.into_iter()
+        .zip(polygons)
+        .enumerate()
+        .map(|(i, (key, polygons))| RawFeature {
+            number: i as u64 + 1,
+            key,
+            polygons,
+        })
+        .collect()
+}
+
 /// Lower-case hex SHA-256 of some byte slices taken together.
 pub fn sha256_hex(parts: &[&[u8]]) -> String {
     let mut h = Sha256::new();

@@ -8,8 +8,8 @@ use ::shapefile::dbase::{self, FieldValue};
 use ::shapefile::{PolygonRing, Shape, ShapeReader};
 use geo::Coord;
 
-use super::{check_lonlat, resolve_keys, Layer, LayerRequest};
-use crate::core::overlay::{RawFeature, Ring, RingConvention};
+use super::{check_lonlat, raw_features, resolve_keys, Layer, LayerRequest};
+use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
 /// The files that make one Shapefile, as bytes.
@@ -86,16 +86,7 @@ pub fn read(path: &Path, req: &LayerRequest) -> Result<Layer> {
     })?;
     let mut sorted = fields.clone();
     sorted.sort();
-    let features = keys
-        .into_iter()
-        .zip(polygons)
-        .enumerate()
-        .map(|(i, (key, polygons))| RawFeature {
-            number: i as u64 + 1,
-            key,
-            polygons,
-        })
-        .collect();
+    let features = raw_features(keys, polygons);
     Ok(Layer {
         path: path.to_path_buf(),
         sha256,
@@ -229,45 +220,32 @@ fn inside(ring: &Ring, p: Coord<f64>) -> bool {
     c
 }
 
+/// Rings of any polygon kind (plain, Z or M), tagged outer (`true`) or
+/// inner, as longitude/latitude.
+fn tagged_rings<P>(rings: Vec<PolygonRing<P>>, xy: impl Fn(&P) -> (f64, f64)) -> Vec<(bool, Ring)> {
+    let coords = |v: &[P]| -> Ring {
+        v.iter()
+            .map(|q| {
+                let (x, y) = xy(q);
+                Coord { x, y }
+            })
+            .collect()
+    };
+    rings
+        .iter()
+        .map(|r| match r {
+            PolygonRing::Outer(v) => (true, coords(v)),
+            PolygonRing::Inner(v) => (false, coords(v)),
+        })
+        .collect()
+}
+
 fn shape_polygons(path: &Path, n: u64, shape: Shape) -> Result<Vec<Vec<Ring>>> {
     let rings: Vec<(bool, Ring)> = match shape {
         Shape::NullShape => return Ok(Vec::new()),
-        Shape::Polygon(p) => p
-            .into_inner()
-            .into_iter()
-            .map(|r| match r {
-                PolygonRing::Outer(v) => {
-                    (true, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-                PolygonRing::Inner(v) => {
-                    (false, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-            })
-            .collect(),
-        Shape::PolygonZ(p) => p
-            .into_inner()
-            .into_iter()
-            .map(|r| match r {
-                PolygonRing::Outer(v) => {
-                    (true, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-                PolygonRing::Inner(v) => {
-                    (false, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-            })
-            .collect(),
-        Shape::PolygonM(p) => p
-            .into_inner()
-            .into_iter()
-            .map(|r| match r {
-                PolygonRing::Outer(v) => {
-                    (true, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-                PolygonRing::Inner(v) => {
-                    (false, v.iter().map(|q| Coord { x: q.x, y: q.y }).collect())
-                }
-            })
-            .collect(),
+        Shape::Polygon(p) => tagged_rings(p.into_inner(), |q| (q.x, q.y)),
+        Shape::PolygonZ(p) => tagged_rings(p.into_inner(), |q| (q.x, q.y)),
+        Shape::PolygonM(p) => tagged_rings(p.into_inner(), |q| (q.x, q.y)),
         other => {
             return Err(Error::input(
                 Location::file(path).at_line(n),

@@ -7,8 +7,8 @@ use std::path::Path;
 use geo::Coord;
 use serde_json::Value;
 
-use super::{check_lonlat, key_text, resolve_keys, Layer, LayerRequest};
-use crate::core::overlay::{RawFeature, Ring, RingConvention};
+use super::{check_lonlat, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
 fn has_polygons(obj: &Value) -> bool {
@@ -96,16 +96,7 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
             .and_then(|p| p.get(field))
             .and_then(key_text)
     })?;
-    let features = keys
-        .into_iter()
-        .zip(polygons)
-        .enumerate()
-        .map(|(i, (key, polygons))| RawFeature {
-            number: i as u64 + 1,
-            key,
-            polygons,
-        })
-        .collect();
+    let features = raw_features(keys, polygons);
     Ok(Layer {
         path: path.to_path_buf(),
         sha256,
