@@ -262,7 +262,8 @@ impl CodeForm {
         let st: StateFips = st.0.as_str().parse().expect("a state code read above");
         if d.digits.len() <= 3 {
             let n: u16 = d.digits.parse().unwrap_or(0);
-            let c = CountyFips::new(st, n).ok_or_else(|| FipsError::CountyPart(text.to_string()))?;
+            let c =
+                CountyFips::new(st, n).ok_or_else(|| FipsError::CountyPart(text.to_string()))?;
             return Ok((c.into(), repairs));
         }
         let c = county_from_digits(text, &d.digits)?;
@@ -534,7 +535,11 @@ mod tests {
 
     #[test]
     fn a_separate_state_part_joins_a_county_number() {
-        let read = |s, c| CodeForm::County.read_with_state(s, c).map(|(c, _)| c.into_string());
+        let read = |s, c| {
+            CodeForm::County
+                .read_with_state(s, c)
+                .map(|(c, _)| c.into_string())
+        };
         assert_eq!(read("6", "37"), Ok("06037".into()));
         assert_eq!(read("06", "037.0"), Ok("06037".into()));
         assert_eq!(read("51", "600"), Ok("51600".into()));
@@ -578,7 +583,10 @@ mod tests {
             CodeForm::Digits(11)
         );
         // Numbers of varying length are not zero-padded codes.
-        assert_eq!(CodeForm::detect(["1", "2", "3", "10", "11"]), CodeForm::Plain);
+        assert_eq!(
+            CodeForm::detect(["1", "2", "3", "10", "11"]),
+            CodeForm::Plain
+        );
         assert_eq!(CodeForm::detect(["A1", "B2"]), CodeForm::Plain);
         assert_eq!(CodeForm::detect([]), CodeForm::Plain);
         // A ZIP-like column (county part 000 possible) is fixed-width digits.
