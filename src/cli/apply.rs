@@ -20,7 +20,7 @@ use super::{say, warn, Global};
 use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
-use crate::core::fips::{CountyFips, StateFips};
+use crate::core::fips::CodeForm;
 use crate::core::history::{carry, Carried};
 use crate::core::reference::{ChangeKind, Reference};
 use crate::error::{Error, Result};
@@ -259,14 +259,6 @@ fn parse_separator(text: &Option<String>) -> Result<Option<u8>> {
     }
 }
 
-/// How codes are normalized.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum CodeKind {
-    County,
-    State,
-    Text,
-}
-
 /// Everything checked before the long work.
 struct Config {
     requests: Vec<Request>,
@@ -376,45 +368,15 @@ fn check_args(args: &Args) -> Result<Config> {
     })
 }
 
-/// Normalizes a raw code; `Err` says why it cannot be read.
-fn normalize(kind: CodeKind, raw: &RawCode) -> std::result::Result<String, String> {
-    match (kind, &raw.state) {
-        (CodeKind::County, Some(state)) => {
-            let st: StateFips = state.parse().map_err(|e| format!("state part: {e}"))?;
-            let t = raw.code.trim();
-            let t = t.strip_suffix(".0").unwrap_or(t);
-            let n: u16 = t
-                .parse()
-                .ok()
-                .filter(|n| (1..=999).contains(n))
-                .ok_or_else(|| format!("county part {:?} is not a number 1..999", raw.code))?;
-            CountyFips::new(st, n)
-                .map(|c| c.to_string())
-                .ok_or_else(|| "not a county code".into())
-        }
-        (CodeKind::County, None) => raw
-            .code
-            .parse::<CountyFips>()
-            .map(|c| c.to_string())
-            .map_err(|e| e.to_string()),
-        (CodeKind::State, _) => raw
-            .code
-            .parse::<StateFips>()
-            .map(|c| c.to_string())
-            .map_err(|e| e.to_string()),
-        (CodeKind::Text, _) => Ok(raw.code.trim().to_string()),
-    }
-}
-
-fn code_kind(cw: &Crosswalk) -> CodeKind {
-    let all = |f: &dyn Fn(&str) -> bool| cw.rows.iter().all(|r| f(&r.from_code));
-    if all(&|c| c.len() == 5 && c.parse::<CountyFips>().is_ok()) {
-        CodeKind::County
-    } else if all(&|c| c.len() == 2 && c.parse::<StateFips>().is_ok()) {
-        CodeKind::State
-    } else {
-        CodeKind::Text
-    }
+/// Reads a raw code through the one code parser; `Err` says why it cannot
+/// be read.
+fn normalize(form: CodeForm, raw: &RawCode) -> std::result::Result<String, String> {
+    let read = match &raw.state {
+        Some(state) => form.read_with_state(state, &raw.code),
+        None => form.read(&raw.code),
+    };
+    read.map(|(c, _)| c.into_string())
+        .map_err(|e| e.to_string())
 }
 
 /// The rows a crosswalk has for one source code.
@@ -646,11 +608,11 @@ pub fn run(args: Args, global: Global) -> Result<()> {
 
     // Normalize the distinct codes.
     let kind = match (&config.crosswalk, config.to_vintage) {
-        (_, Some(_)) => CodeKind::County,
-        (Some((_, cw)), None) => code_kind(cw),
-        (None, None) => CodeKind::Text,
+        (_, Some(_)) => CodeForm::County,
+        (Some((_, cw)), None) => CodeForm::detect(cw.rows.iter().map(|r| r.from_code.as_str())),
+        (None, None) => CodeForm::Plain,
     };
-    if config.data.state_column.is_some() && kind != CodeKind::County {
+    if config.data.state_column.is_some() && kind != CodeForm::County {
         return Err(Error::Usage(
             "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
         ));
@@ -1193,14 +1155,14 @@ mod tests {
             state: Some("6".into()),
             code: "37".into(),
         };
-        assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
+        assert_eq!(normalize(CodeForm::County, &raw), Ok("06037".into()));
         let raw = RawCode {
             state: None,
             code: "6037.0".into(),
         };
-        assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
+        assert_eq!(normalize(CodeForm::County, &raw), Ok("06037".into()));
         assert!(normalize(
-            CodeKind::County,
+            CodeForm::County,
             &RawCode {
                 state: None,
                 code: "abc".into()

@@ -4,7 +4,8 @@
 use std::io::Write;
 use std::path::Path;
 
-use crate::core::crosswalk::{Crosswalk, CrosswalkRow};
+use crate::core::crosswalk::{CodeRepair, Crosswalk, CrosswalkRow};
+use crate::core::fips::CodeForm;
 use crate::error::{Error, Location, Result};
 use crate::io::output::fixed;
 use crate::io::table::{read_table, read_table_bytes, ReadOptions};
@@ -32,19 +33,41 @@ pub fn write_csv(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()
     Ok(())
 }
 
-/// Reads a crosswalk CSV. Structural problems (missing column, a weight that
-/// is not a number, an unknown basis) are errors naming line and column.
+/// A crosswalk as read from a file, with where each row was and which codes
+/// reading normalized.
+#[derive(Debug, Clone)]
+pub struct CrosswalkFile {
+    /// The rows, codes normalized.
+    pub crosswalk: Crosswalk,
+    /// The line of each row in the file (the header is line 1).
+    pub lines: Vec<u64>,
+    /// The form of the source and of the target codes.
+    pub forms: (CodeForm, CodeForm),
+    /// Codes that were not written in their column's form ("2201" among
+    /// five-digit codes), as read.
+    pub repairs: Vec<CodeRepair>,
+}
+
+/// Reads a crosswalk CSV (or Parquet). Structural problems (missing column,
+/// a weight that is not a number, an unknown basis) are errors naming line
+/// and column. Codes are read through the one code parser, so a code that
+/// lost its leading zero is restored (see [`read_file`] to learn which).
 pub fn read_csv(path: &Path) -> Result<Crosswalk> {
+    read_file(path).map(|f| f.crosswalk)
+}
+
+/// Reads a crosswalk file and notes which codes were normalized.
+pub fn read_file(path: &Path) -> Result<CrosswalkFile> {
     from_table(read_table(path, ReadOptions::default())?)
 }
 
 /// Reads a crosswalk CSV held in memory (an embedded file); `label` names it
 /// in messages.
 pub fn read_csv_bytes(label: &Path, bytes: &[u8]) -> Result<Crosswalk> {
-    from_table(read_table_bytes(label, bytes, ReadOptions::default())?)
+    from_table(read_table_bytes(label, bytes, ReadOptions::default())?).map(|f| f.crosswalk)
 }
 
-fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
+fn from_table(table: crate::io::table::Table) -> Result<CrosswalkFile> {
     let path = table.path.clone();
     let path = path.as_path();
     let cols: Vec<usize> = COLUMNS[..3]
@@ -93,7 +116,14 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
             "the crosswalk has no rows",
         ));
     }
-    Ok(Crosswalk { rows })
+    let mut crosswalk = Crosswalk { rows };
+    let (from_form, to_form, repairs) = crosswalk.normalize_codes();
+    Ok(CrosswalkFile {
+        crosswalk,
+        lines: table.lines.clone(),
+        forms: (from_form, to_form),
+        repairs,
+    })
 }
 
 /// Writes a crosswalk as Parquet: the same columns, codes as text, weights
