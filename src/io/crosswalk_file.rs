@@ -7,7 +7,7 @@ use std::path::Path;
 use crate::core::crosswalk::{CodeRepair, Crosswalk, CrosswalkRow};
 use crate::core::fips::CodeForm;
 use crate::error::{Error, Location, Result};
-use crate::io::output::fixed;
+use crate::io::output::{fixed, write_csv_record};
 use crate::io::table::{read_table, read_table_bytes, ReadOptions};
 
 /// The column names of a crosswalk file, in order.
@@ -18,16 +18,17 @@ pub const DECIMALS: usize = 12;
 
 /// Writes a crosswalk as CSV (rows as given; call [`Crosswalk::sort`] first).
 pub fn write_csv(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()> {
-    writeln!(w, "{}", COLUMNS.join(","))?;
+    write_csv_record(w, &COLUMNS)?;
     for r in &crosswalk.rows {
-        writeln!(
+        write_csv_record(
             w,
-            "{},{},{},{},{}",
-            r.from_code,
-            r.to_code.as_deref().unwrap_or(""),
-            fixed(r.weight, DECIMALS),
-            r.target_share.map_or(String::new(), |s| fixed(s, DECIMALS)),
-            r.basis.as_str()
+            &[
+                r.from_code.as_str(),
+                r.to_code.as_deref().unwrap_or(""),
+                &fixed(r.weight, DECIMALS),
+                &r.target_share.map_or(String::new(), |s| fixed(s, DECIMALS)),
+                r.basis.as_str(),
+            ],
         )?;
     }
     Ok(())
@@ -156,18 +157,7 @@ pub fn is_parquet_path(path: &Path) -> bool {
         .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
 }
 
-/// The sidecar metadata path: the crosswalk path with `.json` appended.
-pub fn sidecar_path(path: &Path) -> std::path::PathBuf {
-    let mut s = path.as_os_str().to_owned();
-    s.push(".json");
-    s.into()
-}
-
-/// The caution carried in every sidecar.
-pub const CAUTION: &str =
-    "Figures allocated with this crosswalk are estimates: they assume a value \
-is spread evenly (by area or by population) within each source unit. For legal or funding uses, \
-official relationship files and local practice prevail.";
+pub use crate::io::output::{sidecar_path, CAUTION};
 
 /// Writes sidecar metadata (a JSON value) with sorted keys and a final
 /// newline, so the bytes are stable.
