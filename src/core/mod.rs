@@ -3,9 +3,11 @@
 
 pub mod allocate;
 pub mod chain;
+pub mod composite;
 pub mod crosswalk;
 pub mod fips;
 pub mod geodesy;
+pub mod group;
 pub mod history;
 pub mod matcher;
 pub mod normalize;
