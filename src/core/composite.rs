@@ -379,6 +379,71 @@ pub fn read(
     if let Some(r) = read_named(resolver, named, name, column_state.as_deref()) {
         return Some(r);
     }
+    // "Dukes and Nantucket Counties": the plural description is each part's.
+    if let Some((head, singular)) = plural_description(name) {
+        let described = ReadWith {
+            inner: resolver,
+            suffix: singular,
+        };
+        if let Some(r) = read_cut(&described, head, state, column_state.as_deref()) {
+            return Some(r);
+        }
+    }
+    read_cut(resolver, name, state, column_state.as_deref())
+}
+
+/// Plural descriptions written once after several names (common practice
+/// in US agency tables), with the singular each part takes.
+const PLURAL_DESCRIPTIONS: &[(&str, &str)] = &[
+    ("counties", "County"),
+    ("cos", "County"),
+    ("boroughs", "Borough"),
+    ("parishes", "Parish"),
+    ("census areas", "Census Area"),
+    ("municipalities", "Municipality"),
+    ("municipios", "Municipio"),
+];
+
+/// The name without a trailing plural description, and the singular.
+fn plural_description(name: &str) -> Option<(&str, &'static str)> {
+    let t = name.trim_end().trim_end_matches('.');
+    let lower = t.to_lowercase();
+    PLURAL_DESCRIPTIONS.iter().find_map(|(plural, singular)| {
+        let head = lower.strip_suffix(plural)?;
+        // A whole word, after at least one name.
+        (head.ends_with(' ') && !head.trim().is_empty())
+            .then(|| (t[..head.len()].trim_end(), *singular))
+    })
+}
+
+/// A resolver that adds a description to every part it is asked.
+struct ReadWith<'a> {
+    inner: &'a dyn PartResolver,
+    suffix: &'static str,
+}
+
+impl PartResolver for ReadWith<'_> {
+    fn resolve_part(&self, text: &str, state: Option<&str>) -> Resolution {
+        self.inner
+            .resolve_part(&format!("{text} {}", self.suffix), state)
+    }
+
+    fn state_code(&self, text: &str) -> Option<String> {
+        self.inner.state_code(text)
+    }
+
+    fn unit(&self, code: &str) -> Option<(String, String)> {
+        self.inner.unit(code)
+    }
+}
+
+/// Cuts `name` at its separators and reads the parts.
+fn read_cut(
+    resolver: &dyn PartResolver,
+    name: &str,
+    state: Option<&str>,
+    column_state: Option<&str>,
+) -> Option<Resolution> {
     let (segs, gaps) = segments(name);
     if segs.len() < 2 {
         return None;
@@ -387,7 +452,7 @@ pub fn read(
     if segs.len() >= 3 && gaps.last() == Some(&true) {
         let (a, b) = segs[segs.len() - 1];
         if let Some(code) = resolver.state_code(&name[a..b]) {
-            if column_state.as_ref().is_none_or(|c| *c == code) {
+            if column_state.is_none_or(|c| c == code) {
                 let n = segs.len() - 1;
                 if let Some(r) = read_parts(resolver, name, &segs[..n], Some(&code)) {
                     return Some(r);
@@ -750,6 +815,97 @@ pub fn spread(
     }
     cells.sort();
     (out, cells)
+}
+
+/// Prepares the pooled sources of a table for [`spread`]: each composite
+/// (code, members) gets its members' source indices (`source_index`) and
+/// shares by `size`. A composite with a member that is no source, or with
+/// no size for a member, is returned in the second list with the reason
+/// (its rows are then reported, not allocated).
+pub fn prepare_pooled(
+    composites: &[(String, Vec<String>)],
+    source_index: impl Fn(&str) -> Option<usize>,
+    size: impl Fn(&str) -> Option<f64>,
+    basis: SplitBasis,
+) -> (Vec<Pooled>, Vec<(String, String)>) {
+    let mut ok = Vec::new();
+    let mut refused = Vec::new();
+    for (code, members) in composites {
+        let missing: Vec<&str> = members
+            .iter()
+            .filter(|m| source_index(m).is_none())
+            .map(String::as_str)
+            .collect();
+        if !missing.is_empty() {
+            refused.push((
+                code.clone(),
+                format!(
+                    "member(s) {} are not sources of the crosswalk; rows left out",
+                    missing.join(", ")
+                ),
+            ));
+            continue;
+        }
+        match shares(members, &size) {
+            Ok(sh) => ok.push(Pooled {
+                code: code.clone(),
+                members: members
+                    .iter()
+                    .zip(sh)
+                    .map(|(m, s)| (source_index(m).expect("checked above"), s))
+                    .collect(),
+                basis,
+            }),
+            Err(why) => refused.push((
+                code.clone(),
+                format!("cannot split by {}: {why}; rows left out", basis.as_str()),
+            )),
+        }
+    }
+    (ok, refused)
+}
+
+/// What each output row (target, period) received from pooled reports: the
+/// composites whose values reached the target through a member, as
+/// "CODE by BASIS" joined by "; ". `links` gives the source indices that
+/// feed a target.
+pub fn pooled_labels(
+    targets: usize,
+    links: impl Fn(usize) -> Vec<usize>,
+    cells: &[PooledCell],
+    pooled: &[Pooled],
+) -> BTreeMap<(usize, usize), String> {
+    let mut by_source: BTreeMap<usize, BTreeMap<usize, BTreeSet<usize>>> = BTreeMap::new();
+    for c in cells {
+        by_source
+            .entry(c.source)
+            .or_default()
+            .entry(c.period)
+            .or_default()
+            .insert(c.pooled);
+    }
+    let mut out = BTreeMap::new();
+    if by_source.is_empty() {
+        return out;
+    }
+    for t in 0..targets {
+        let mut per_period: BTreeMap<usize, BTreeSet<usize>> = BTreeMap::new();
+        for s in links(t) {
+            if let Some(periods) = by_source.get(&s) {
+                for (p, ks) in periods {
+                    per_period.entry(*p).or_default().extend(ks);
+                }
+            }
+        }
+        for (p, ks) in per_period {
+            let text: Vec<String> = ks
+                .iter()
+                .map(|&k| format!("{} by {}", pooled[k].code, pooled[k].basis.as_str()))
+                .collect();
+            out.insert((t, p), text.join("; "));
+        }
+    }
+    out
 }
 
 #[cfg(test)]
