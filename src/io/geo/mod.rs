@@ -141,12 +141,7 @@ pub fn read_layer(req: &LayerRequest) -> Result<Layer> {
 }
 
 fn read_json(path: &Path, bytes: &[u8], req: &LayerRequest) -> Result<Layer> {
-    let doc: Value = serde_json::from_slice(bytes).map_err(|e| {
-        Error::input(
-            Location::file(path).at_line(e.line() as u64),
-            format!("not valid JSON: {e}; expected GeoJSON or TopoJSON"),
-        )
-    })?;
+    let doc: Value = serde_json::from_slice(bytes).map_err(|e| json_error(path, &e))?;
     let sha = sha256_hex(&[bytes]);
     match doc.get("type").and_then(Value::as_str) {
         Some("Topology") => topojson::read(path, &doc, sha, req),
@@ -154,10 +149,39 @@ fn read_json(path: &Path, bytes: &[u8], req: &LayerRequest) -> Result<Layer> {
         other => Err(Error::input(
             Location::file(path),
             format!(
-                "the JSON has type {other:?}; expected a GeoJSON FeatureCollection or a TopoJSON Topology"
+                "{}; expected a GeoJSON FeatureCollection or a TopoJSON Topology",
+                match other {
+                    Some(t) => format!("the JSON has the type {t:?}"),
+                    None => "the JSON has no \"type\" member".to_string(),
+                }
             ),
         )),
     }
+}
+
+/// A JSON syntax error in the project's words: where (line and character)
+/// and what the parser expected.
+fn json_error(path: &Path, e: &serde_json::Error) -> Error {
+    use serde_json::error::Category;
+    // The parser's own text without its " at line L column C" tail, which
+    // the location already gives.
+    let text = e.to_string();
+    let what = text
+        .rsplit_once(" at line ")
+        .map_or(text.as_str(), |(w, _)| w)
+        .to_string();
+    let why = match e.classify() {
+        Category::Eof => "the file ends in the middle of the JSON (truncated?)".to_string(),
+        Category::Io => "the file cannot be read as text".to_string(),
+        Category::Syntax | Category::Data => what,
+    };
+    Error::input(
+        Location::file(path).at_line(e.line() as u64),
+        format!(
+            "not valid JSON at character {}: {why}; expected GeoJSON or TopoJSON",
+            e.column()
+        ),
+    )
 }
 
 /// The key text of a JSON value: strings as they are, integral numbers
@@ -359,7 +383,7 @@ pub fn resolve_keys(
                         return Err(Error::input(
                             Location::file(path).at_feature(n),
                             format!(
-                                "feature {n} has no id; give {} FIELD (the fields are: {})",
+                                "the feature has no id; give {} FIELD (the fields are: {})",
                                 req.key_option,
                                 list(fields)
                             ),
@@ -389,7 +413,10 @@ pub fn resolve_keys(
                     None => {
                         return Err(Error::input(
                             Location::file(path).at_feature(n).in_column(field),
-                            format!("feature {n} has no value in field {field:?}"),
+                            format!(
+                                "the feature has no value in field {field:?}; every feature \
+                                 needs its key"
+                            ),
                         ))
                     }
                 }

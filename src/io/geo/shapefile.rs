@@ -366,9 +366,9 @@ fn shape_rings(
         return Err(Error::input(
             at("shape type"),
             format!(
-                "feature {number} is {name} in a file of {} shapes; a boundary layer holds \
-                 polygons",
-                shape_type_name(file_type).unwrap_or("?")
+                "feature {number} is {name}, but the .shp header says the file holds {} shapes; \
+                 the file is damaged, or it is not a boundary layer (which holds polygons)",
+                shape_type_name(file_type).unwrap_or("other")
             ),
         ));
     }
@@ -478,7 +478,7 @@ fn check_shx(shx: &Part, shp: &Part, records: &[ShpRecord]) -> Result<()> {
     let body = end - HEADER;
     let hint = "one of the files is damaged or they come from different saves; if the .shp is \
                 right, remove the .shx (it is not needed to read the .shp)";
-    if body % 8 != 0 || body / 8 != records.len() {
+    if !body.is_multiple_of(8) || body / 8 != records.len() {
         return Err(Error::input(
             Location::file(&shx.path),
             format!(
@@ -817,12 +817,28 @@ fn from_files(shp: &Path) -> Result<Parts> {
     })
 }
 
+/// A zip problem in the project's words.
+fn zip_problem(e: &zip::result::ZipError) -> String {
+    use zip::result::ZipError;
+    match e {
+        ZipError::Io(_) | ZipError::InvalidArchive(_) => {
+            "its directory or a file header is damaged or missing (a truncated download?)".into()
+        }
+        ZipError::UnsupportedArchive(what) => {
+            format!("it uses a zip feature that is not read ({what}); unpack it and give the .shp")
+        }
+        ZipError::FileNotFound => "a member it lists is missing".into(),
+        ZipError::InvalidPassword => "it is encrypted; unpack it and give the .shp".into(),
+        _ => "it is damaged or of a kind not read; unpack it and give the .shp".into(),
+    }
+}
+
 fn from_zip(path: &Path) -> Result<Parts> {
     let bytes = std::fs::read(path).map_err(|e| Error::io(path, "cannot open layer", e))?;
     let mut zip = zip::ZipArchive::new(Cursor::new(bytes)).map_err(|e| {
         Error::input(
             Location::file(path),
-            format!("not a readable zip file ({e}); the file is damaged or not a zip"),
+            format!("not a readable zip file: {}", zip_problem(&e)),
         )
     })?;
     let names: Vec<String> = zip.file_names().map(str::to_string).collect();
@@ -863,10 +879,10 @@ fn from_zip(path: &Path) -> Result<Parts> {
         let damaged = |e: &dyn std::fmt::Display| {
             Error::input(
                 Location::file(&label),
-                format!("cannot read this member of the zip ({e}); the zip is damaged"),
+                format!("cannot read this member of the zip: {e}"),
             )
         };
-        let f = zip.by_name(name).map_err(|e| damaged(&e))?;
+        let f = zip.by_name(name).map_err(|e| damaged(&zip_problem(&e)))?;
         let declared = f.size();
         if declared > MAX_ZIP_MEMBER {
             return Err(Error::input(
@@ -881,12 +897,12 @@ fn from_zip(path: &Path) -> Result<Parts> {
         // unpacks to more than its stated size is caught without reading
         // it all.
         let mut buf = Vec::new();
-        f.take(declared + 1)
-            .read_to_end(&mut buf)
-            .map_err(|e| damaged(&e))?;
+        f.take(declared + 1).read_to_end(&mut buf).map_err(|_| {
+            damaged(&"its packed bytes do not unpack to what the zip recorded (damaged)")
+        })?;
         if buf.len() as u64 != declared {
             return Err(damaged(&format!(
-                "it unpacks to {} bytes where the zip says {declared}",
+                "it unpacks to {} bytes where the zip says {declared} (damaged)",
                 buf.len()
             )));
         }

@@ -153,19 +153,31 @@ fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
         .and_then(Value::as_array)
         .ok_or_else(|| bad("no \"arcs\" list"))?;
     let mut out = Vec::with_capacity(arcs.len());
-    for arc in arcs {
-        let pts = arc.as_array().ok_or_else(|| bad("an arc is not a list"))?;
+    for (i, arc) in arcs.iter().enumerate() {
+        let pts = arc.as_array().ok_or_else(|| {
+            Error::input(
+                Location::file(path).in_column("arcs"),
+                format!("arc {i} is not a list of positions"),
+            )
+        })?;
         let mut v = Vec::with_capacity(pts.len());
         let (mut x, mut y) = (0.0f64, 0.0f64);
-        for p in pts {
-            let p = p
-                .as_array()
-                .ok_or_else(|| bad("an arc position is not a list"))?;
-            let (Some(a), Some(b)) = (
-                p.first().and_then(Value::as_f64),
-                p.get(1).and_then(Value::as_f64),
-            ) else {
-                return Err(bad("an arc position is not two numbers"));
+        for (k, p) in pts.iter().enumerate() {
+            let pair = p.as_array().and_then(|p| {
+                Some((
+                    p.first().and_then(Value::as_f64)?,
+                    p.get(1).and_then(Value::as_f64)?,
+                ))
+            });
+            let Some((a, b)) = pair else {
+                return Err(Error::input(
+                    Location::file(path).in_column("arcs"),
+                    format!(
+                        "arc {i}, position {}: {} is not a pair of numbers",
+                        k + 1,
+                        short(p)
+                    ),
+                ));
             };
             match transform {
                 Some(((sx, sy), (tx, ty))) => {
