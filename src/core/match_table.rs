@@ -15,7 +15,7 @@ use std::collections::{BTreeMap, BTreeSet, HashMap};
 use rayon::prelude::*;
 
 use crate::core::decisions::{Choice, Decision, Decisions, Years, NONE};
-use crate::core::fips::{CountyFips, StateFips};
+use crate::core::fips;
 use crate::core::matcher::{Candidate, CodeForm, Matcher, Method, Resolution, Status};
 use crate::core::reference::Reference;
 use crate::error::{Error, Result};
@@ -172,13 +172,13 @@ impl<'r> Matchers<'r> {
 /// A code as the reference writes it: FIPS codes get their lost leading
 /// zero back ("2066" is 02066); a user's own codes stay as written.
 pub fn normalize_code(codes: CodeForm, text: &str) -> String {
-    let t = text.trim();
-    let parsed = match codes {
-        CodeForm::County => t.parse::<CountyFips>().ok().map(|c| c.to_string()),
-        CodeForm::State => t.parse::<StateFips>().ok().map(|c| c.to_string()),
-        CodeForm::Plain => None,
+    let form = match codes {
+        CodeForm::County => fips::CodeForm::County,
+        CodeForm::State => fips::CodeForm::State,
+        CodeForm::Plain => fips::CodeForm::Plain,
     };
-    parsed.unwrap_or_else(|| t.to_string())
+    form.parse(text)
+        .map_or_else(|_| text.trim().to_string(), fips::Code::into_string)
 }
 
 /// One distinct (name, state, year) of the input, with its result.
