@@ -4,9 +4,11 @@
 pub mod allocate;
 pub mod chain;
 pub mod crosswalk;
+pub mod decisions;
 pub mod fips;
 pub mod geodesy;
 pub mod history;
+pub mod match_table;
 pub mod matcher;
 pub mod normalize;
 pub mod overlay;
