@@ -17,6 +17,7 @@ pub mod inspect;
 pub mod map;
 pub mod match_names;
 pub mod overlay;
+pub mod review_page;
 
 const EXIT_CODES: &str = "\
 Exit codes:
@@ -61,6 +62,8 @@ pub enum Command {
     History(history::Args),
     /// Draw a map of which units of a layer a table joined to, and how fully.
     Map(map::Args),
+    /// Write an offline HTML page to settle the names of a review file.
+    ReviewPage(review_page::Args),
     /// Check a table's codes against a boundary layer before drawing it.
     Audit(audit::Args),
     /// Run the whole pipeline on built-in demo data.
@@ -87,6 +90,7 @@ pub fn main() -> ExitCode {
         Command::History(a) => history::run(a, global),
         Command::Map(a) => map::run(a, global),
         Command::Demo(a) => demo::run(a, global),
+        Command::ReviewPage(a) => review_page::run(a, global),
         Command::Audit(a) => match audit::run(a, global) {
             Ok(audit::Verdict::Failed) => return ExitCode::from(3),
             other => other.map(|_| ()),
