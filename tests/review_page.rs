@@ -446,7 +446,14 @@ fn a_person_settles_the_review_in_the_browser_and_match_takes_the_file_back() {
     let text = std::fs::read_to_string(&saved).unwrap();
     let from_page = s.script("return window.regionkeyDecisionsCsv()");
     assert_eq!(text, from_page.as_str().unwrap());
-    assert!(text.starts_with("name,state,chosen_code\n"), "{text}");
+    // The review file says which years each name covers; the decisions keep them.
+    let review = std::fs::read_to_string(demo.join("review-first-pass.csv")).unwrap();
+    let header = if review.starts_with("name,state,years,") {
+        "name,state,years,chosen_code\n"
+    } else {
+        "name,state,chosen_code\n"
+    };
+    assert!(text.starts_with(header), "{text}");
     assert_eq!(text.lines().count(), 6, "{text}");
     s.call("DELETE", "", json!({}));
 
