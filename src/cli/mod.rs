@@ -12,6 +12,7 @@ pub mod apply;
 pub mod audit;
 pub mod chain;
 pub mod demo;
+pub mod group;
 pub mod history;
 pub mod inspect;
 pub mod map;
@@ -66,6 +67,8 @@ pub enum Command {
     ReviewPage(review_page::Args),
     /// Check a table's codes against a boundary layer before drawing it.
     Audit(audit::Args),
+    /// Build crosswalks both ways between counties and groups of counties from a membership list.
+    Group(group::Args),
     /// Run the whole pipeline on built-in demo data.
     Demo(demo::Args),
 }
@@ -89,6 +92,7 @@ pub fn main() -> ExitCode {
         Command::Chain(a) => chain::run(a, global),
         Command::History(a) => history::run(a, global),
         Command::Map(a) => map::run(a, global),
+        Command::Group(a) => group::run(a, global),
         Command::Demo(a) => demo::run(a, global),
         Command::ReviewPage(a) => review_page::run(a, global),
         Command::Audit(a) => match audit::run(a, global) {

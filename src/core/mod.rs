@@ -4,10 +4,12 @@
 pub mod allocate;
 pub mod audit;
 pub mod chain;
+pub mod composite;
 pub mod crosswalk;
 pub mod decisions;
 pub mod fips;
 pub mod geodesy;
+pub mod group;
 pub mod history;
 pub mod match_table;
 pub mod matcher;
