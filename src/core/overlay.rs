@@ -35,6 +35,8 @@ use rstar::{RTree, AABB};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::geodesy::WGS84;
 
+pub mod validity;
+
 /// A ring as read: coordinates (longitude, latitude), closed or not.
 pub type Ring = Vec<Coord<f64>>;
 
@@ -208,15 +210,8 @@ fn repair_feature(
     if mp.0.is_empty() {
         return (mp, raw_area);
     }
-    use geo::Validation;
-    let mut messages = Vec::new();
-    mp.visit_validation(Box::new(|e| {
-        if messages.len() < 3 {
-            messages.push(e.to_string());
-        }
-        Ok::<(), ()>(())
-    }))
-    .ok();
+    let mut messages = validity::problems(&mp);
+    messages.truncate(3);
     if messages.is_empty() {
         return (mp, raw_area);
     }
@@ -271,12 +266,11 @@ pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedL
         }
         let mut geometry = MultiPolygon::new(polys);
         if idx.len() > 1 {
-            use geo::Validation;
             let numbers: Vec<String> = idx
                 .iter()
                 .map(|&i| features[i].number.to_string())
                 .collect();
-            let joined = !geometry.is_valid();
+            let joined = !validity::problems(&geometry).is_empty();
             if joined {
                 geometry =
                     geometry.union_with_fill_rule(&MultiPolygon::new(vec![]), FillRule::NonZero);
