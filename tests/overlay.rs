@@ -45,10 +45,10 @@ fn run(sources: &[Unit], targets: &[Unit], min_share: f64, weighting: Weighting)
         sources,
         targets,
         &Options {
-            min_share,
             weighting,
+            ..Options::area(min_share)
         },
-        &|| {},
+        &|_| {},
     )
 }
 
@@ -708,4 +708,247 @@ fn a_zipped_shapefile_is_read_in_memory() {
     assert!(text.contains("W,A1,1.000000000000"), "{text}");
     // nothing was extracted beside the zip
     assert!(!dir.path().join("zones").exists());
+}
+
+// ------------------------------------------------ nesting, history, population
+
+/// The shipped crosswalk as (from, to) -> (weight, basis).
+fn shipped() -> BTreeMap<(String, String), (f64, String)> {
+    let text = std::fs::read_to_string("crosswalks/us-counties-2017-2023.csv").unwrap();
+    text.lines()
+        .skip(1)
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (
+                (f[0].to_string(), f[1].to_string()),
+                (f[2].parse().unwrap(), f[4].to_string()),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn counties_never_cross_a_state_line_in_the_shipped_crosswalk() {
+    // A county's first two digits are its state (FIPS 6-4 / INCITS 31: county
+    // codes are assigned within states), and counties nest in states: a piece
+    // from one state into another is generalization noise of the 1:10m layers.
+    let xw = shipped();
+    let crossing: Vec<_> = xw
+        .keys()
+        .filter(|(f, t)| !t.is_empty() && f[..2] != t[..2])
+        .collect();
+    assert!(crossing.is_empty(), "{crossing:?}");
+    // The case that was shipped before: a share of Windham County (09015)
+    // and of New London County (09011) in Rhode Island.
+    assert!(!xw.contains_key(&("09011".into(), "44009".into())));
+    let meta: serde_json::Value = serde_json::from_slice(
+        &std::fs::read("crosswalks/us-counties-2017-2023.csv.json").unwrap(),
+    )
+    .unwrap();
+    let dropped = &meta["nesting"]["dropped_by_source"]["09011"]["44009"];
+    assert!(
+        dropped.as_f64().is_some_and(|w| w > 0.0 && w < 0.01),
+        "{dropped}"
+    );
+    // Weights of every source still sum to 1.
+    let mut sums: BTreeMap<&str, f64> = BTreeMap::new();
+    for ((f, _), (w, _)) in &xw {
+        *sums.entry(f).or_default() += w;
+    }
+    assert!(sums.values().all(|s| close(*s, 1.0, 1e-9)));
+}
+
+#[test]
+fn falls_church_collapses_at_1_10m_but_keeps_its_identity_row_from_the_history() {
+    // 51610 Falls Church city: in the reference since 1970, no change in the
+    // history between 2017 and 2023 (crosswalks/us-county-changes.csv).
+    let xw = shipped();
+    let row = &xw[&("51610".into(), "51610".into())];
+    assert_eq!(row.0, 1.0);
+    assert_eq!(row.1, "history");
+    let dir = tempfile::tempdir().unwrap();
+    rk().args([
+        "overlay",
+        "builtin:counties-2017",
+        "builtin:counties-2023",
+        "--output",
+    ])
+    .arg(dir.path().join("xw.csv"))
+    .assert()
+    .success()
+    .stderr(predicate::str::contains(
+        "the change history says 51610 continued unchanged, so it gets the identity row",
+    ));
+}
+
+fn write(dir: &std::path::Path, name: &str, text: &str) -> std::path::PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+fn square_layer(
+    dir: &std::path::Path,
+    name: &str,
+    features: &[(&str, [f64; 4])],
+) -> std::path::PathBuf {
+    let f: Vec<String> = features
+        .iter()
+        .map(|(k, [x0, y0, x1, y1])| {
+            format!(
+                r#"{{"type":"Feature","properties":{{"code":"{k}"}},"geometry":{{"type":"Polygon","coordinates":[[[{x0},{y0}],[{x1},{y0}],[{x1},{y1}],[{x0},{y1}],[{x0},{y0}]]]}}}}"#
+            )
+        })
+        .collect();
+    write(
+        dir,
+        name,
+        &format!(
+            r#"{{"type":"FeatureCollection","features":[{}]}}"#,
+            f.join(",")
+        ),
+    )
+}
+
+#[test]
+fn units_nesting_in_parents_named_by_code_prefix_drop_pieces_across_parents() {
+    // Tracts 11 and 12 of county AA, tract 21 of county BB. The new layer's
+    // AA/BB line sits 0.005 degrees east of the old one (generalization):
+    // AA11 reaches 0.5 % into BB21 by area.
+    let dir = tempfile::tempdir().unwrap();
+    let old = square_layer(
+        dir.path(),
+        "old.geojson",
+        &[
+            ("AA11", [0.0, 0.0, 1.0, 1.0]),
+            ("BB21", [1.0, 0.0, 2.0, 1.0]),
+        ],
+    );
+    let new = square_layer(
+        dir.path(),
+        "new.geojson",
+        &[
+            ("AA11", [0.0, 0.0, 0.995, 1.0]),
+            ("BB21", [0.995, 0.0, 2.0, 1.0]),
+        ],
+    );
+    let out = dir.path().join("xw.csv");
+    let report = dir.path().join("report.csv");
+    let go = |extra: &[&str]| {
+        rk().args(["overlay"])
+            .arg(&old)
+            .arg(&new)
+            .args(["--from-key", "code", "--to-key", "code", "--min-share", "0"])
+            .args(extra)
+            .arg("--output")
+            .arg(&out)
+            .arg("--report")
+            .arg(&report)
+            .assert()
+            .success()
+    };
+    go(&[]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(
+        text.contains("AA11,BB21,"),
+        "without the option the piece stays: {text}"
+    );
+    go(&["--parent-digits", "2"]).stderr(predicate::str::contains(
+        "1 pieces in 1 sources crossed into another parent unit",
+    ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(!text.contains("AA11,BB21,"), "{text}");
+    assert!(
+        text.contains("AA11,AA11,1.000000000000,"),
+        "renormalized: {text}"
+    );
+    let rep = std::fs::read_to_string(&report).unwrap();
+    assert!(
+        rep.lines()
+            .any(|l| l.starts_with("cross-parent,AA11,BB21,0.0050")),
+        "{rep}"
+    );
+    let meta: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
+    assert_eq!(meta["options"]["parent_digits"], 2);
+    assert!(
+        meta["nesting"]["dropped_by_source"]["AA11"]["BB21"]
+            .as_f64()
+            .unwrap()
+            > 0.004
+    );
+}
+
+#[test]
+fn population_points_outside_every_source_and_area_fallbacks_are_counted_and_far_pieces_flagged() {
+    // Source S = [0,2]x[0,1] split by targets A (west half) and B (east
+    // half); all 90 people of S live in A, so the population weight of
+    // S->A is 0.9 against an area weight of 0.5, and of S->B 0.1 against
+    // 0.5: both "check". Source E has nobody (falls back to area). Two points with 7
+    // people lie outside every source.
+    let dir = tempfile::tempdir().unwrap();
+    let from = square_layer(
+        dir.path(),
+        "from.geojson",
+        &[("S", [0.0, 0.0, 2.0, 1.0]), ("E", [5.0, 0.0, 6.0, 1.0])],
+    );
+    let to = square_layer(
+        dir.path(),
+        "to.geojson",
+        &[
+            ("A", [0.0, 0.0, 1.0, 1.0]),
+            ("B", [1.0, 0.0, 2.0, 1.0]),
+            ("C", [5.0, 0.0, 6.0, 1.0]),
+        ],
+    );
+    let pop = write(
+        dir.path(),
+        "pop.csv",
+        "lon,lat,people\n0.5,0.5,90\n1.5,0.5,10\n10,10,3\n-20,5,4\n",
+    );
+    let out = dir.path().join("xw.csv");
+    let report = dir.path().join("report.csv");
+    rk().args(["overlay"])
+        .arg(&from)
+        .arg(&to)
+        .args([
+            "--from-key",
+            "code",
+            "--to-key",
+            "code",
+            "--weight",
+            "population",
+        ])
+        .arg("--population")
+        .arg(&pop)
+        .args(["--population-field", "people", "--output"])
+        .arg(&out)
+        .arg("--report")
+        .arg(&report)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains(
+            "2 population points (count 7) lie outside every source polygon",
+        ))
+        .stderr(predicate::str::contains(
+            "1 sources have no population and fell back to area",
+        ))
+        .stderr(predicate::str::contains("2 pieces flagged check"));
+    let rep = std::fs::read_to_string(&report).unwrap();
+    assert!(
+        rep.lines().any(|l| l.starts_with("check,S,A,0.9000")),
+        "{rep}"
+    );
+    assert!(
+        rep.lines().any(|l| l.starts_with("check,S,B,0.1000")),
+        "{rep}"
+    );
+    assert!(
+        rep.lines().any(|l| l.starts_with("area-fallback,E,")),
+        "{rep}"
+    );
+    let meta: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
+    assert_eq!(meta["population_checks"]["points_outside_every_source"], 2);
+    assert_eq!(meta["population_checks"]["pieces_flagged"], 2);
 }
