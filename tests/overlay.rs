@@ -349,62 +349,78 @@ fn the_rtree_finds_the_same_pairs_as_brute_force_on_the_county_layers() {
     assert_eq!(tree, brute);
 }
 
+/// Runs the grid validity check and geo's all-pairs check on every feature
+/// of a layer; returns how many features are invalid.
+fn validity_twins_agree(spec: &str) -> usize {
+    use regionkey::core::overlay::validity::{problems, problems_brute_force};
+    let l = read_layer(&LayerRequest {
+        spec: spec.to_string(),
+        key: None,
+        object: None,
+        key_option: "--from-key",
+        object_option: "--from-object",
+    })
+    .unwrap();
+    let mut invalid = 0;
+    for f in &l.features {
+        let polys: Vec<Polygon<f64>> = f
+            .polygons
+            .iter()
+            .filter_map(|rings| {
+                let mut closed: Vec<LineString<f64>> = rings
+                    .iter()
+                    .map(|r| {
+                        let mut ls = LineString::from(r.clone());
+                        ls.close();
+                        ls
+                    })
+                    // Rings with fewer than 3 distinct points are
+                    // dropped before the check (as `prepare` does).
+                    .filter(|ls| {
+                        let mut d = ls.0.clone();
+                        d.sort_by(|a, b| a.x.total_cmp(&b.x).then(a.y.total_cmp(&b.y)));
+                        d.dedup();
+                        d.len() >= 3
+                    })
+                    .collect();
+                (!closed.is_empty()).then(|| {
+                    let ext = closed.remove(0);
+                    Polygon::new(ext, closed)
+                })
+            })
+            .collect();
+        let mp = MultiPolygon::new(polys);
+        let fast = problems(&mp);
+        let slow = problems_brute_force(&mp);
+        assert_eq!(
+            fast.is_empty(),
+            slow.is_empty(),
+            "{spec} feature {} ({}): {fast:?} vs {slow:?}",
+            f.number,
+            f.key
+        );
+        invalid += usize::from(!fast.is_empty());
+    }
+    invalid
+}
+
 #[test]
 fn the_segment_grid_validity_check_agrees_with_geos_all_pairs_check_on_every_county() {
     // Twin check: geo's own validation (all pairs of segments) decides the
     // same valid/invalid verdict for every feature of both built-in layers.
-    use regionkey::core::overlay::validity::{problems, problems_brute_force};
-    let mut invalid = 0;
-    for name in ["counties-2017", "counties-2023"] {
-        let l = read_layer(&LayerRequest {
-            spec: format!("builtin:{name}"),
-            key: None,
-            object: None,
-            key_option: "--from-key",
-            object_option: "--from-object",
-        })
-        .unwrap();
-        for f in &l.features {
-            let polys: Vec<Polygon<f64>> = f
-                .polygons
-                .iter()
-                .filter_map(|rings| {
-                    let mut closed: Vec<LineString<f64>> = rings
-                        .iter()
-                        .map(|r| {
-                            let mut ls = LineString::from(r.clone());
-                            ls.close();
-                            ls
-                        })
-                        // Rings with fewer than 3 distinct points are
-                        // dropped before the check (as `prepare` does).
-                        .filter(|ls| {
-                            let mut d = ls.0.clone();
-                            d.sort_by(|a, b| a.x.total_cmp(&b.x).then(a.y.total_cmp(&b.y)));
-                            d.dedup();
-                            d.len() >= 3
-                        })
-                        .collect();
-                    (!closed.is_empty()).then(|| {
-                        let ext = closed.remove(0);
-                        Polygon::new(ext, closed)
-                    })
-                })
-                .collect();
-            let mp = MultiPolygon::new(polys);
-            let fast = problems(&mp);
-            let slow = problems_brute_force(&mp);
-            assert_eq!(
-                fast.is_empty(),
-                slow.is_empty(),
-                "{name} feature {} ({}): {fast:?} vs {slow:?}",
-                f.number,
-                f.key
-            );
-            invalid += usize::from(!fast.is_empty());
-        }
-    }
+    let invalid = validity_twins_agree("builtin:counties-2017")
+        + validity_twins_agree("builtin:counties-2023");
     assert!(invalid > 10, "{invalid}");
+}
+
+/// The same twin check on a layer named by RK_TWIN_LAYER (e.g. a densified
+/// layer from scripts/bench-overlay/densify.py; slow: geo's check is
+/// quadratic). `cargo test --test overlay -- --ignored twin_check_on`.
+#[test]
+#[ignore]
+fn twin_check_on_a_layer_from_the_environment() {
+    let spec = std::env::var("RK_TWIN_LAYER").expect("RK_TWIN_LAYER");
+    eprintln!("{} invalid features", validity_twins_agree(&spec));
 }
 
 #[test]
