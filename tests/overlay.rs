@@ -616,8 +616,8 @@ fn a_feature_that_is_not_a_polygon_is_named_by_number() {
         .arg(dir.path().join("x.csv"))
         .assert()
         .code(1)
-        .stderr(predicate::str::contains("line 2"))
-        .stderr(predicate::str::contains("feature 2 is a \"Point\""));
+        .stderr(predicate::str::contains("pts.geojson: feature 2"))
+        .stderr(predicate::str::contains("is a \"Point\""));
 }
 
 #[test]
@@ -967,4 +967,46 @@ fn population_points_outside_every_source_and_area_fallbacks_are_counted_and_far
         serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
     assert_eq!(meta["population_checks"]["points_outside_every_source"], 2);
     assert_eq!(meta["population_checks"]["pieces_flagged"], 2);
+}
+
+#[test]
+fn integer_keys_of_a_county_layer_keep_their_leading_zero() {
+    // Numbers in the key field (as written by tools that store GEOIDs as
+    // integers): 1001 is county 01001 and 2201 is 02201 (FIPS 6-4 codes
+    // have five digits, the first two the state).
+    let dir = tempfile::tempdir().unwrap();
+    let f: Vec<String> = [(1001, 0.0), (2201, 1.0), (13121, 2.0), (36061, 3.0)]
+        .iter()
+        .map(|(k, x)| {
+            format!(
+                r#"{{"type":"Feature","properties":{{"GEOID":{k}}},"geometry":{{"type":"Polygon","coordinates":[[[{x},0],[{x1},0],[{x1},1],[{x},1],[{x},0]]]}}}}"#,
+                x1 = x + 1.0
+            )
+        })
+        .collect();
+    let layer = write(
+        dir.path(),
+        "ints.geojson",
+        &format!(
+            r#"{{"type":"FeatureCollection","features":[{}]}}"#,
+            f.join(",")
+        ),
+    );
+    let out = dir.path().join("xw.csv");
+    rk().arg("overlay")
+        .arg(&layer)
+        .arg(&layer)
+        .args(["--from-key", "GEOID", "--to-key", "GEOID", "--output"])
+        .arg(&out)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains(
+            "2 keys of field \"GEOID\" had lost their leading zeros (read as 5-digit county codes)",
+        ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(text.contains("\n01001,01001,1.000000000000,"), "{text}");
+    assert!(text.contains("\n02201,02201,1.000000000000,"), "{text}");
+    assert!(!text.contains("\n1001,"), "{text}");
+    // What `apply` and `inspect` read back is the same code.
+    rk().arg("inspect").arg(&out).assert().success();
 }

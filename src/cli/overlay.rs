@@ -10,6 +10,7 @@ use serde_json::json;
 
 use super::Global;
 use crate::core::crosswalk::{Basis, Crosswalk};
+use crate::core::fips::CodeForm;
 use crate::core::overlay::{
     overlay, prepare, Nesting, Options, OverlayResult, PreparedLayer, Weighting, DEFAULT_MIN_SHARE,
     POPULATION_CHECK_MARGIN,
@@ -18,7 +19,7 @@ use crate::error::{Error, Result};
 use crate::io::crosswalk_file::{
     is_parquet_path, sidecar_path, write_csv, write_parquet, write_sidecar, CAUTION, DECIMALS,
 };
-use crate::io::geo::{population, read_layer, Layer, LayerRequest};
+use crate::io::geo::{population, read_layer, KeyReading, Layer, LayerRequest, RepeatedKeys};
 use crate::io::output::{fixed, write_file, write_to, Target};
 use crate::io::progress::Progress;
 
@@ -29,6 +30,15 @@ pub enum WeightBy {
     Area,
     /// Share of the source's population, from --population.
     Population,
+}
+
+/// What to do with features that share a key.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Repeated {
+    /// Take them together as one unit, with a warning naming the key.
+    Merge,
+    /// Stop with an error naming the key and its features.
+    Refuse,
 }
 
 /// Arguments.
@@ -89,6 +99,10 @@ pub struct More {
     /// Weight pieces by area or by population.
     #[arg(long, value_enum, default_value_t = WeightBy::Area)]
     pub weight: WeightBy,
+    /// Several features of a layer with the same key: take them together
+    /// as one unit with a warning naming the key (merge), or stop (refuse).
+    #[arg(long, value_enum, value_name = "WHAT", default_value_t = Repeated::Merge)]
+    pub repeated_keys: Repeated,
     /// Population layer: CSV with lon, lat and a count column; GeoJSON
     /// points; or a polygon layer whose counts are spread by area.
     #[arg(long, value_name = "LAYER")]
@@ -127,6 +141,8 @@ pub struct Config {
     pub min_share: f64,
     /// `--parent-digits`: `None` for the default (see [`Args`]).
     pub parent_digits: Option<usize>,
+    /// What to do with features that share a key.
+    pub repeated: RepeatedKeys,
     /// Hide the progress bar.
     pub quiet: bool,
 }
@@ -217,6 +233,10 @@ fn check(args: &Args, quiet: bool) -> Result<(Config, Outputs)> {
         population,
         min_share: args.min_share,
         parent_digits: args.more.parent_digits,
+        repeated: match args.more.repeated_keys {
+            Repeated::Merge => RepeatedKeys::Merge,
+            Repeated::Refuse => RepeatedKeys::Refuse,
+        },
         quiet,
     };
     Ok((config, Outputs { output, report }))
@@ -283,10 +303,12 @@ pub struct LayerInfo {
     pub key: String,
     /// Number of features.
     pub features: usize,
+    /// How the keys were read.
+    pub keys: KeyReading,
 }
 
 impl LayerInfo {
-    fn of(l: &Layer) -> LayerInfo {
+    fn of(l: &Layer, keys: KeyReading) -> LayerInfo {
         LayerInfo {
             path: l.path.clone(),
             sha256: l.sha256.clone(),
@@ -294,7 +316,17 @@ impl LayerInfo {
             object: l.object.clone(),
             key: l.key.clone(),
             features: l.features.len(),
+            keys,
         }
+    }
+}
+
+fn form_name(form: CodeForm) -> String {
+    match form {
+        CodeForm::County => "5-digit county codes".into(),
+        CodeForm::State => "2-digit state codes".into(),
+        CodeForm::Digits(w) => format!("{w}-digit codes"),
+        CodeForm::Plain => "keys as written".into(),
     }
 }
 
@@ -335,6 +367,8 @@ pub struct Report {
     pub nesting: Nesting,
     /// Items that need a person's eye.
     pub items: Vec<ReportItem>,
+    /// Warnings about the input layers (repeated keys and the like).
+    pub warnings: Vec<String>,
     /// The metadata written beside the crosswalk.
     pub metadata: serde_json::Value,
 }
@@ -342,8 +376,9 @@ pub struct Report {
 /// Builds the crosswalk: reads both layers (and the population layer),
 /// repairs them, overlays, and gathers the report. Writes nothing.
 pub fn execute(config: &Config) -> Result<Report> {
-    let (from_prep, from) = read_prepared(&config.from)?;
-    let (to_prep, to) = read_prepared(&config.to)?;
+    let mut warnings = Vec::new();
+    let (from_prep, from) = read_prepared(&config.from, config.repeated, &mut warnings)?;
+    let (to_prep, to) = read_prepared(&config.to, config.repeated, &mut warnings)?;
     let (weighting, population_sha256) = match &config.population {
         Some((spec, field)) => {
             let (layer, sha) = population::read(spec, field)?;
@@ -395,6 +430,7 @@ pub fn execute(config: &Config) -> Result<Report> {
         population_sha256,
         nesting,
         items,
+        warnings,
         metadata: serde_json::Value::Null,
     };
     report.metadata = metadata(config, &report);
@@ -403,9 +439,24 @@ pub fn execute(config: &Config) -> Result<Report> {
 
 /// Reads a layer and repairs it; the raw features are dropped here, so only
 /// the prepared units stay in memory.
-fn read_prepared(req: &LayerRequest) -> Result<(PreparedLayer, LayerInfo)> {
-    let layer = read_layer(req)?;
-    let info = LayerInfo::of(&layer);
+fn read_prepared(
+    req: &LayerRequest,
+    repeated: RepeatedKeys,
+    warnings: &mut Vec<String>,
+) -> Result<(PreparedLayer, LayerInfo)> {
+    let mut layer = read_layer(req)?;
+    let keys = layer.normalize_keys()?;
+    if keys.repaired > 0 {
+        warnings.push(format!(
+            "{}: {} keys of field {:?} had lost their leading zeros (read as {}); restored",
+            layer.path.display(),
+            keys.repaired,
+            layer.key,
+            form_name(keys.form)
+        ));
+    }
+    warnings.extend(layer.notes(repeated, Some("--repeated-keys"))?);
+    let info = LayerInfo::of(&layer, keys);
     let prepared = prepare(&layer.features, layer.convention);
     Ok((prepared, info))
 }
@@ -516,6 +567,9 @@ fn write_report(w: &mut dyn Write, items: &[ReportItem]) -> std::io::Result<()> 
 pub fn run(args: Args, global: Global) -> Result<()> {
     let (config, outputs) = check(&args, global.quiet)?;
     let report = execute(&config)?;
+    for w in &report.warnings {
+        super::warn(w);
+    }
     match &outputs.output {
         Target::File(path) if is_parquet_path(path) => {
             write_file(path, |w| write_parquet(w, &report.crosswalk))?
@@ -558,6 +612,8 @@ fn layer_json(layer: &LayerInfo, label: &str) -> serde_json::Value {
         "format": layer.format,
         "object": layer.object,
         "key": layer.key,
+        "key_form": form_name(layer.keys.form),
+        "keys_with_leading_zeros_restored": layer.keys.repaired,
         "vintage": label,
         "features": layer.features,
     })

@@ -49,7 +49,19 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
     let path = path.as_path();
     let cols: Vec<usize> = COLUMNS[..3]
         .iter()
-        .map(|c| table.column(c))
+        .map(|c| {
+            table.column(c).map_err(|_| {
+                Error::input(
+                    Location::file(path).in_column(*c),
+                    format!(
+                        "not a crosswalk: no column {c:?} (the columns are: {}); a crosswalk has \
+                         the columns from_code, to_code and weight, and may have target_share \
+                         and basis",
+                        table.headers.join(", ")
+                    ),
+                )
+            })
+        })
         .collect::<Result<_>>()?;
     let share = table.column("target_share").ok();
     let basis = table.column("basis").ok();
@@ -60,13 +72,23 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
             t.parse::<f64>()
                 .ok()
                 .filter(|v| v.is_finite())
-                .ok_or_else(|| Error::input(table.location(i, c), format!("{t:?} is not a number")))
+                .ok_or_else(|| {
+                    Error::input(
+                        table.location(i, c),
+                        format!(
+                            "{t:?} is not a number; {} is a share written as a decimal number \
+                             (0.25 for a quarter)",
+                            table.headers[c]
+                        ),
+                    )
+                })
         };
         let from = r[cols[0]].trim();
         if from.is_empty() {
             return Err(Error::input(
                 table.location(i, cols[0]),
-                "empty source code",
+                "the source code is empty; every row needs a from_code (an empty to_code is \
+                 the share outside every target)",
             ));
         }
         let to = r[cols[1]].trim();
@@ -90,7 +112,7 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
     if rows.is_empty() {
         return Err(Error::input(
             Location::file(path),
-            "the crosswalk has no rows",
+            "the crosswalk has a header but no rows",
         ));
     }
     Ok(Crosswalk { rows })
