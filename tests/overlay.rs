@@ -499,25 +499,36 @@ fn rk() -> Command {
 
 #[test]
 fn regenerating_the_shipped_county_crosswalk_gives_the_same_bytes() {
+    // The shipped file is made from the repository root with
+    //   regionkey overlay builtin:counties-2017 builtin:counties-2023 \
+    //       --output crosswalks/us-counties-2017-2023.csv
+    // and its sidecar records that output path: run the same from a folder
+    // of the same shape.
     let dir = tempfile::tempdir().unwrap();
-    let out = dir.path().join("us-counties-2017-2023.csv");
-    rk().args([
-        "-q",
-        "overlay",
-        "builtin:counties-2017",
-        "builtin:counties-2023",
-        "--output",
-    ])
-    .arg(&out)
-    .assert()
-    .success();
+    std::fs::create_dir(dir.path().join("crosswalks")).unwrap();
+    rk().current_dir(dir.path())
+        .args([
+            "-q",
+            "overlay",
+            "builtin:counties-2017",
+            "builtin:counties-2023",
+            "--output",
+            "crosswalks/us-counties-2017-2023.csv",
+        ])
+        .assert()
+        .success();
+    let out = dir.path().join("crosswalks/us-counties-2017-2023.csv");
     let shipped = std::fs::read("crosswalks/us-counties-2017-2023.csv").unwrap();
     assert!(
         std::fs::read(&out).unwrap() == shipped,
         "the crosswalk differs from crosswalks/"
     );
     let meta = std::fs::read("crosswalks/us-counties-2017-2023.csv.json").unwrap();
-    assert!(std::fs::read(dir.path().join("us-counties-2017-2023.csv.json")).unwrap() == meta);
+    assert!(
+        std::fs::read(dir.path().join("crosswalks/us-counties-2017-2023.csv.json")).unwrap()
+            == meta,
+        "the sidecar differs from crosswalks/"
+    );
 }
 
 fn geojson_layer(dir: &std::path::Path) -> std::path::PathBuf {
@@ -554,8 +565,13 @@ fn a_geojson_overlay_writes_csv_parquet_and_metadata() {
     );
     let meta: serde_json::Value =
         serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
-    assert_eq!(meta["from"]["key"], "GEOID");
-    assert_eq!(meta["from"]["sha256"].as_str().unwrap().len(), 64);
+    assert_eq!(meta["command"], "overlay");
+    assert_eq!(meta["inputs"][0]["role"], "from");
+    assert_eq!(meta["inputs"][0]["key"], "GEOID");
+    assert_eq!(meta["inputs"][0]["sha256"].as_str().unwrap().len(), 64);
+    // The sidecar names the SHA-256 of the crosswalk it describes.
+    let sha = regionkey::io::output::sha256_file(&out).unwrap();
+    assert_eq!(meta["output"]["sha256"], sha.as_str());
     assert!(meta["caution"].as_str().unwrap().contains("estimates"));
     let pq = dir.path().join("xw.parquet");
     rk().args(["-q", "overlay"])

@@ -16,11 +16,11 @@ use crate::core::overlay::{
     POPULATION_CHECK_MARGIN,
 };
 use crate::error::{Error, Result};
-use crate::io::crosswalk_file::{
-    is_parquet_path, sidecar_path, write_csv, write_parquet, write_sidecar, CAUTION, DECIMALS,
-};
+use crate::io::crosswalk_file::{is_parquet_path, write_csv, write_parquet, DECIMALS};
 use crate::io::geo::{population, read_layer, KeyReading, Layer, LayerRequest, RepeatedKeys};
-use crate::io::output::{fixed, write_file, write_to, Target};
+use crate::io::output::{
+    fixed, sidecar_path, Sidecar, SidecarInput, Staged, Target, Written, CAUTION,
+};
 use crate::io::progress::Progress;
 
 /// What the weights measure.
@@ -145,15 +145,13 @@ pub struct Config {
     pub repeated: RepeatedKeys,
     /// Hide the progress bar.
     pub quiet: bool,
+    /// Where the crosswalk goes (its sidecar goes beside a file).
+    pub output: Target,
+    /// Where the report goes, if asked.
+    pub report: Option<PathBuf>,
 }
 
-/// Checked output paths of the command line.
-struct Outputs {
-    output: Target,
-    report: Option<PathBuf>,
-}
-
-fn check(args: &Args, quiet: bool) -> Result<(Config, Outputs)> {
+fn check(args: &Args, quiet: bool) -> Result<Config> {
     if !(0.0..0.5).contains(&args.min_share) {
         return Err(Error::Usage(format!(
             "--min-share {} is out of range; give a share from 0 (keep everything) up to below 0.5",
@@ -238,8 +236,10 @@ fn check(args: &Args, quiet: bool) -> Result<(Config, Outputs)> {
             Repeated::Refuse => RepeatedKeys::Refuse,
         },
         quiet,
+        output,
+        report,
     };
-    Ok((config, Outputs { output, report }))
+    Ok(config)
 }
 
 fn label(spec: &str, given: &Option<String>) -> String {
@@ -369,12 +369,16 @@ pub struct Report {
     pub items: Vec<ReportItem>,
     /// Warnings about the input layers (repeated keys and the like).
     pub warnings: Vec<String>,
-    /// The metadata written beside the crosswalk.
-    pub metadata: serde_json::Value,
+    /// The crosswalk as written (path, SHA-256, bytes).
+    pub output: Written,
+    /// The sidecar written beside a crosswalk file.
+    pub sidecar: Option<PathBuf>,
 }
 
 /// Builds the crosswalk: reads both layers (and the population layer),
-/// repairs them, overlays, and gathers the report. Writes nothing.
+/// repairs them, overlays, and writes the crosswalk, the report file (if
+/// asked) and the sidecar together (staged, renamed into place at the end,
+/// sidecar last).
 pub fn execute(config: &Config) -> Result<Report> {
     let mut warnings = Vec::new();
     let (from_prep, from) = read_prepared(&config.from, config.repeated, &mut warnings)?;
@@ -420,8 +424,21 @@ pub fn execute(config: &Config) -> Result<Report> {
     let result = overlay(&from_prep.units, &to_prep.units, &options, &tick);
     progress.finish();
     let items = report_items(&result, &from_prep, &to_prep);
+    let crosswalk = result.crosswalk.clone();
+    let mut staged = Staged::new();
+    let parquet = matches!(&config.output, Target::File(p) if is_parquet_path(p));
+    let output = staged.stage_target(&config.output, |w| {
+        if parquet {
+            write_parquet(w, &crosswalk)
+        } else {
+            write_csv(w, &crosswalk)
+        }
+    })?;
+    if let Some(path) = &config.report {
+        staged.stage(path, |w| write_report(w, &items))?;
+    }
     let mut report = Report {
-        crosswalk: result.crosswalk.clone(),
+        crosswalk,
         result,
         from,
         to,
@@ -431,9 +448,16 @@ pub fn execute(config: &Config) -> Result<Report> {
         nesting,
         items,
         warnings,
-        metadata: serde_json::Value::Null,
+        output,
+        sidecar: None,
     };
-    report.metadata = metadata(config, &report);
+    if let Target::File(path) = &config.output {
+        let side = sidecar_path(path);
+        let meta = sidecar(config, &report);
+        staged.stage(&side, |w| meta.write(w))?;
+        report.sidecar = Some(side);
+    }
+    staged.commit()?;
     Ok(report)
 }
 
@@ -563,30 +587,14 @@ fn write_report(w: &mut dyn Write, items: &[ReportItem]) -> std::io::Result<()> 
     Ok(())
 }
 
-/// Runs the command: arguments, checked configuration, [`execute`], write.
+/// Runs the command: arguments, checked configuration, [`execute`].
 pub fn run(args: Args, global: Global) -> Result<()> {
-    let (config, outputs) = check(&args, global.quiet)?;
+    let config = check(&args, global.quiet)?;
     let report = execute(&config)?;
     for w in &report.warnings {
         super::warn(w);
     }
-    match &outputs.output {
-        Target::File(path) if is_parquet_path(path) => {
-            write_file(path, |w| write_parquet(w, &report.crosswalk))?
-        }
-        target => write_to(target, |w| write_csv(w, &report.crosswalk))?,
-    }
-    if let Some(path) = &outputs.report {
-        write_file(path, |w| write_report(w, &report.items))?;
-    }
-    match &outputs.output {
-        Target::File(path) => {
-            let side = sidecar_path(path);
-            write_file(&side, |w| write_sidecar(w, &report.metadata))?;
-            say_summary(global, &report, Some(&side), outputs.report.as_deref());
-        }
-        Target::Stdout => say_summary(global, &report, None, outputs.report.as_deref()),
-    }
+    say_summary(global, &report, config.report.as_deref());
     Ok(())
 }
 
@@ -605,25 +613,29 @@ fn repairs_json(p: &PreparedLayer) -> serde_json::Value {
         .collect()
 }
 
-fn layer_json(layer: &LayerInfo, label: &str) -> serde_json::Value {
-    json!({
-        "path": layer.path.display().to_string(),
-        "sha256": layer.sha256,
+fn layer_input(role: &str, layer: &LayerInfo, label: &str) -> SidecarInput {
+    let more = json!({
         "format": layer.format,
         "object": layer.object,
         "key": layer.key,
         "key_form": form_name(layer.keys.form),
         "keys_with_leading_zeros_restored": layer.keys.repaired,
         "vintage": label,
-        "features": layer.features,
-    })
+    });
+    SidecarInput {
+        role: role.into(),
+        path: layer.path.display().to_string(),
+        sha256: layer.sha256.clone(),
+        rows: Some(layer.features as u64),
+        more: more.as_object().cloned().unwrap_or_default(),
+    }
 }
 
 fn round(v: f64) -> f64 {
     fixed(v, DECIMALS).parse().unwrap_or(v)
 }
 
-fn metadata(config: &Config, report: &Report) -> serde_json::Value {
+fn sidecar(config: &Config, report: &Report) -> Sidecar {
     let result = &report.result;
     let dropped: serde_json::Map<String, serde_json::Value> = result
         .sources
@@ -662,24 +674,30 @@ fn metadata(config: &Config, report: &Report) -> serde_json::Value {
         .filter(|s| s.not_nested)
         .map(|s| s.key.as_str())
         .collect();
-    let population = config.population.as_ref().map(|(p, f)| {
-        json!({
-            "path": p,
-            "field": f,
-            "sha256": report.population_sha256,
-        })
+    let mut meta = Sidecar::new("overlay", report.output.clone());
+    meta.inputs
+        .push(layer_input("from", &report.from, &config.from_label));
+    meta.inputs
+        .push(layer_input("to", &report.to, &config.to_label));
+    if let Some((p, f)) = &config.population {
+        let mut more = serde_json::Map::new();
+        more.insert("field".into(), json!(f));
+        meta.inputs.push(SidecarInput {
+            role: "population".into(),
+            path: p.clone(),
+            sha256: report.population_sha256.clone().unwrap_or_default(),
+            rows: None,
+            more,
+        });
+    }
+    meta.options = json!({
+        "weight": if config.population.is_some() { "population" } else { "area" },
+        "min_share": config.min_share,
+        "parent_digits": match report.nesting { Nesting::None => 0, Nesting::CodePrefix(n) => n },
+        "repeated_keys": match config.repeated { RepeatedKeys::Merge => "merge", RepeatedKeys::Refuse => "refuse" },
+        "area": "WGS84 ellipsoid, edges straight in longitude/latitude",
     });
-    let mut meta = json!({
-        "tool": format!("regionkey {}", env!("CARGO_PKG_VERSION")),
-        "from": layer_json(&report.from, &config.from_label),
-        "to": layer_json(&report.to, &config.to_label),
-        "options": {
-            "weight": if config.population.is_some() { "population" } else { "area" },
-            "population": population,
-            "min_share": config.min_share,
-            "parent_digits": match report.nesting { Nesting::None => 0, Nesting::CodePrefix(n) => n },
-            "area": "WGS84 ellipsoid, edges straight in longitude/latitude",
-        },
+    let details = json!({
         "columns": {
             "from_code": "source unit code",
             "to_code": "target unit code; empty for the share of the source outside every target",
@@ -687,48 +705,45 @@ fn metadata(config: &Config, report: &Report) -> serde_json::Value {
             "target_share": "share of the target made of this piece (area or population)",
             "basis": "area, population, area-fallback (population weighting asked, source has none), or history (identity row from the change history)",
         },
+        "rows": report.crosswalk.rows.len(),
         "sliver_rule": "a piece below min_share of both its source and its target is dropped and the source's weights renormalized",
         "dropped_share_by_source": dropped,
         "overlapping_targets_share_by_source": overlaps,
         "area_fallback_sources": fallback,
         "targets_without_source": result.unreached_targets,
         "repairs": { "from": repairs_json(&report.from_prep), "to": repairs_json(&report.to_prep) },
-        "caution": CAUTION,
     });
+    let mut meta_details = details.as_object().cloned().unwrap_or_default();
     if let Nesting::CodePrefix(n) = report.nesting {
-        meta["nesting"] = json!({
+        meta_details.insert("nesting".into(), json!({
             "rule": format!(
                 "units nest in parents named by the first {n} characters of their codes; a piece in another parent is a sliver of generalized boundaries: dropped and the source renormalized"
             ),
             "dropped_by_source": cross,
             "not_nested_sources": not_nested,
-        });
+        }));
     }
     if !result.history_rows.is_empty() {
-        meta["history_rows"] = json!({
+        meta_details.insert("history_rows".into(), json!({
             "rule": "a unit that collapses to nothing in both layers but that the change history says continued unchanged gets an identity row with basis history",
             "codes": result.history_rows,
-        });
+        }));
     }
     if config.population.is_some() {
         let checks = report.items.iter().filter(|i| i.item == "check").count();
-        meta["population_checks"] = json!({
+        meta_details.insert("population_checks".into(), json!({
             "margin": POPULATION_CHECK_MARGIN,
             "rule": "a piece whose population weight departs from its area weight by more than the margin is listed as check in the report",
             "pieces_flagged": checks,
             "points_outside_every_source": result.points_outside.map(|p| p.0),
             "count_outside_every_source": result.points_outside.map(|p| round(p.1)),
-        });
+        }));
     }
+    meta.details = meta_details;
     meta
 }
 
-fn say_summary(
-    global: Global,
-    report: &Report,
-    sidecar: Option<&Path>,
-    report_file: Option<&Path>,
-) {
+fn say_summary(global: Global, report: &Report, report_file: Option<&Path>) {
     let result = &report.result;
     let (from, to) = (&report.from_prep, &report.to_prep);
     let rows = report.crosswalk.rows.len();
@@ -859,9 +874,10 @@ fn say_summary(
             ),
         );
     }
-    if let Some(p) = sidecar {
+    if let Some(p) = &report.sidecar {
         super::say(global, format!("  metadata: {}", p.display()));
     }
+    super::say(global, format!("  {CAUTION}"));
     if let Some(p) = report_file {
         super::say(global, format!("  report: {}", p.display()));
     }
