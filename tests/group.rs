@@ -38,7 +38,20 @@ fn read_rows(path: &Path) -> Vec<Row> {
 
 fn find<'a>(rows: &'a [Row], code: &str, period: Option<&str>) -> &'a Row {
     rows.iter()
-        .find(|r| r["code"] == code && period.is_none_or(|p| r["period"] == p))
+        // apply keeps the data's names for the code and period columns.
+        .find(|r| {
+            ["code", "fips", "district"]
+                .iter()
+                .find_map(|c| r.get(*c))
+                .map(String::as_str)
+                == Some(code)
+                && period.is_none_or(|p| {
+                    r.get("period")
+                        .or_else(|| r.get("year"))
+                        .map(String::as_str)
+                        == Some(p)
+                })
+        })
         .unwrap_or_else(|| panic!("no row for {code} {period:?} in {rows:?}"))
 }
 
