@@ -372,6 +372,12 @@ pub fn resolve_keys(
     numbers: &[u64],
     values: impl Fn(usize, &str) -> Option<String>,
 ) -> Result<(Vec<String>, String)> {
+    if ids.is_empty() {
+        return Err(Error::input(
+            Location::file(path),
+            "the layer holds no features; a boundary layer needs at least one unit",
+        ));
+    }
     let mut keys = Vec::with_capacity(ids.len());
     match &req.key {
         None => {
