@@ -508,6 +508,8 @@ fn a_layer_without_features_is_refused_not_read_as_an_empty_crosswalk() {
     let out = dir.path().join("xw.csv");
     overlay_onto_itself(&p, &out, "ID")
         .code(1)
-        .stderr(predicate::str::contains("empty.geojson: the layer holds no features"));
+        .stderr(predicate::str::contains(
+            "empty.geojson: the layer holds no features",
+        ));
     assert_eq!(std::fs::read_to_string(&out).unwrap(), "old");
 }

@@ -5,6 +5,7 @@ pub mod builtin;
 pub mod crosswalk_file;
 pub mod data;
 pub mod geo;
+pub mod guard;
 pub mod output;
 pub mod progress;
 pub mod review;
