@@ -91,6 +91,10 @@ pub fn find_column(path: &Path, headers: &[String], name: &str) -> Result<usize>
 /// compressed file or a broken export read as text. The error names the
 /// line and, when the header can be read, the column.
 pub fn check_text(path: &Path, bytes: &[u8], delimiter: Option<u8>) -> Result<()> {
+    // UTF-16 text is full of NUL bytes; decoding refuses it by name.
+    if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
+        return Ok(());
+    }
     let bad = |b: u8| (b < 0x20 && !matches!(b, b'\t' | b'\n' | b'\r')) || b == 0x7F;
     // A branch-free pass first (most files are clean), then the position.
     let any = bytes
