@@ -8,6 +8,7 @@ pub mod data;
 pub mod geo;
 pub mod html;
 pub mod output;
+pub mod png;
 pub mod progress;
 pub mod review;
 pub mod svg;
