@@ -33,7 +33,7 @@ pub enum ClassMethod {
 }
 
 /// Arguments.
-#[derive(Debug, Default, clap::Args)]
+#[derive(Debug, clap::Args)]
 pub struct Args {
     /// The table (CSV, TSV or Parquet), e.g. the output of `match` or `apply`.
     pub data: PathBuf,
@@ -105,6 +105,34 @@ pub struct Args {
     /// Where to write the SVG (`-` for standard output).
     #[arg(long, short, value_name = "FILE")]
     pub output: String,
+}
+
+impl Default for Args {
+    /// The command line's defaults (for callers that build `Args` in code).
+    fn default() -> Args {
+        Args {
+            data: PathBuf::new(),
+            code_column: "code".into(),
+            coverage_column: None,
+            value_column: None,
+            classes: ClassMethod::Quantiles,
+            class_count: 5,
+            breaks: Vec::new(),
+            low_coverage: 0.9,
+            period_column: None,
+            period: Vec::new(),
+            layer: "builtin:counties-2023".into(),
+            key: None,
+            object: None,
+            states_in_data_only: false,
+            label_largest: 0,
+            label: Vec::new(),
+            title: None,
+            source: None,
+            png: None,
+            output: String::new(),
+        }
+    }
 }
 
 /// What the map found, for summaries: the legend's classes and counts.
@@ -770,6 +798,33 @@ mod tests {
 
     /// matplotlib 3.9.2: `[to_hex(colormaps["viridis"](i / 10)) for i in
     /// range(11)]`, read from the lightest end.
+    #[test]
+    fn the_default_arguments_are_the_command_lines() {
+        use clap::Parser;
+        let parsed =
+            crate::cli::Cli::try_parse_from(["regionkey", "map", "d.csv", "-o", "m.svg"]).unwrap();
+        let crate::cli::Command::Map(a) = parsed.command else {
+            panic!("not map")
+        };
+        let d = Args::default();
+        assert_eq!(
+            (
+                a.code_column,
+                a.class_count,
+                a.low_coverage,
+                a.layer,
+                a.classes
+            ),
+            (
+                d.code_column,
+                d.class_count,
+                d.low_coverage,
+                d.layer,
+                d.classes
+            )
+        );
+    }
+
     #[test]
     fn the_sequential_scale_runs_from_light_to_dark_on_viridis() {
         let matplotlib = [
