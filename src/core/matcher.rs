@@ -42,8 +42,10 @@
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use crate::core::fips::{CountyFips, StateFips};
-use crate::core::normalize::{compact, is_placeholder, key, tokens, Token};
-use crate::core::reference::{Change, ChangeKind, Reference, YearSpan};
+use crate::core::normalize::{
+    abbreviations, compact, edits, is_placeholder, key, tokens, AbbreviationUse, Token,
+};
+use crate::core::reference::{Change, ChangeKind, Parent, Reference, YearSpan};
 
 /// Lowest Jaro-Winkler similarity accepted automatically (within a state).
 pub const ACCEPT_SCORE: f64 = 0.94;
@@ -56,6 +58,17 @@ pub const REVIEW_SCORE: f64 = 0.85;
 pub const LIST_SCORE: f64 = 0.75;
 /// Most fuzzy candidates listed.
 pub const MAX_FUZZY_CANDIDATES: usize = 5;
+/// Longest name (in characters) the matcher reads; a longer text is no
+/// place name and is unmatched at once.
+pub const MAX_NAME_CHARS: usize = 200;
+
+/// The typo rule's length floors: (fewest letters of a unit name for one
+/// edit, for two edits) within a state, and without a state (the whole
+/// country is the block, so the floor is stricter). Our choice, checked by
+/// the one- and two-edit sweep of `tests/match_rules.rs`.
+pub const TYPO_FLOORS_IN_STATE: (usize, usize) = (5, 8);
+/// See [`TYPO_FLOORS_IN_STATE`].
+pub const TYPO_FLOORS_NATIONAL: (usize, usize) = (7, 10);
 
 /// The outcome class of a name.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
@@ -211,6 +224,11 @@ struct Entry {
     valid: YearSpan,
     /// Valid in the matcher's vintage.
     current: bool,
+    /// Words of the bare name (for abbreviated and shortened forms).
+    words: Vec<String>,
+    /// The description was learned from the list and taken off the name
+    /// ("Provincia di Roma" -> "Roma"); the whole name is indexed too.
+    learned: bool,
 }
 
 /// How confident an outcome of one reading is; the best reading wins.
@@ -228,6 +246,8 @@ enum Grade {
 struct Split {
     bare: String,
     desc: Option<String>,
+    /// The words of the bare part, within the reading.
+    range: std::ops::Range<usize>,
 }
 
 /// Description words and their common abbreviations (common practice for
@@ -250,10 +270,94 @@ const US_DESCRIPTIONS: &[(&str, &str)] = &[
     ("municipality", "municipality"),
     ("muni", "municipality"),
     ("municipio", "municipio"),
+    ("municipio autonomo", "municipio"),
     ("planning region", "planningregion"),
     ("district", "district"),
     ("island", "island"),
 ];
+
+/// Words that begin or end the names of many lists and describe the unit
+/// rather than name it, in the languages of common subdivision lists
+/// (common practice; the list is ours). In a user's own list a word of this
+/// list that begins or ends at least two names is learned as a description;
+/// any other word needs to begin or end a fifth of the names.
+const DESCRIPTION_LEXICON: &[&str] = &[
+    "county",
+    "parish",
+    "borough",
+    "district",
+    "province",
+    "provincia",
+    "provinz",
+    "departement",
+    "department",
+    "departamento",
+    "region",
+    "regione",
+    "landkreis",
+    "kreis",
+    "stadtkreis",
+    "bezirk",
+    "municipio",
+    "municipality",
+    "comune",
+    "commune",
+    "gemeinde",
+    "canton",
+    "kanton",
+    "prefecture",
+    "oblast",
+    "raion",
+    "rayon",
+    "governorate",
+    "voivodeship",
+    "powiat",
+    "shire",
+    "territory",
+    "estado",
+    "comarca",
+    "distrito",
+    "okres",
+    "okrug",
+    "township",
+];
+
+/// Small words between a leading description and the name ("County of
+/// Cook", "Municipio de Cabo Rojo", "Provincia di Roma", "Département de la
+/// Somme", "Kreis der ..."). Common practice.
+const CONNECTORS: &[&str] = &[
+    "of", "de", "di", "du", "des", "del", "della", "dello", "delle", "dei", "degli", "d", "l",
+    "la", "le", "les", "von", "der", "den", "da", "do", "dos", "das",
+];
+
+fn is_connector(word: &str) -> bool {
+    CONNECTORS.contains(&word)
+}
+
+/// True when `short` is an abbreviation of `long`: shorter, the same first
+/// letter, and its letters in order within `long` ("prov" of "provincia",
+/// "dept" of "departement", "ct" of "connecticut").
+fn abbreviates(short: &str, long: &str) -> bool {
+    if short.len() >= long.len() || short.is_empty() {
+        return false;
+    }
+    let mut l = long.chars();
+    let mut s = short.chars();
+    if s.next() != l.next() {
+        return false;
+    }
+    s.all(|c| l.any(|x| x == c))
+}
+
+/// Edits a word of `len` letters may carry and still be read as a
+/// description word ("Cuonty", "Parrish": one; "Burrough": two).
+fn description_edits(len: usize) -> usize {
+    match len {
+        0..=4 => 0,
+        5..=7 => 1,
+        _ => 2,
+    }
+}
 
 /// Words that describe a state in a state-level match ("Washington State").
 const STATE_DESCRIPTIONS: &[(&str, &str)] = &[
@@ -276,6 +380,20 @@ fn compatible(asked: &str, unit: &str) -> bool {
 pub struct Matcher<'r> {
     vintage: u16,
     codes: CodeForm,
+    /// The reference is a built-in US one: the US rules apply (a city that
+    /// is no county equivalent, state names given as unit names).
+    us_rules: bool,
+    /// Words of the reference's names and aliases.
+    vocabulary: std::collections::HashSet<String>,
+    /// Written word -> the form the reference uses ("mt" -> "mount"), with
+    /// when it applies; only pairs whose other form the reference lacks.
+    rewrites: HashMap<String, (String, AbbreviationUse)>,
+    /// Single-word description forms of five or more letters (misspelled
+    /// forms are read within a few edits of them), with their canonical key.
+    description_words: Vec<(String, String)>,
+    /// Descriptions learned from a user's list (canonical keys); their
+    /// abbreviations are read too ("Prov." for "Provincia").
+    learned: BTreeSet<String>,
     entries: Vec<Entry>,
     /// Bare key -> entries (every era).
     by_bare: HashMap<String, Vec<usize>>,
@@ -304,14 +422,17 @@ pub struct Matcher<'r> {
 impl<'r> Matcher<'r> {
     /// Builds the indexes for `reference` as it stood in `vintage`.
     pub fn new(reference: &'r Reference, vintage: u16, codes: CodeForm) -> Matcher<'r> {
+        let us_rules = codes != CodeForm::Plain;
         let mut descriptions: HashMap<String, String> = HashMap::new();
-        let words = if codes == CodeForm::State {
-            STATE_DESCRIPTIONS
-        } else {
-            US_DESCRIPTIONS
-        };
-        for (form, canonical) in words {
-            descriptions.insert(key(form), canonical.to_string());
+        if us_rules {
+            let words = if codes == CodeForm::State {
+                STATE_DESCRIPTIONS
+            } else {
+                US_DESCRIPTIONS
+            };
+            for (form, canonical) in words {
+                descriptions.insert(key(form), canonical.to_string());
+            }
         }
         for u in &reference.units {
             let k = key(&u.description);
@@ -319,9 +440,51 @@ impl<'r> Matcher<'r> {
                 descriptions.entry(k.clone()).or_insert(k);
             }
         }
+        let unit_words: Vec<Vec<Token>> = reference.units.iter().map(|u| tokens(&u.name)).collect();
+        // A user's list: words that begin or end many of its names are
+        // descriptions there ("Provincia di", "Landkreis", "District").
+        let learned: BTreeSet<String> = if us_rules {
+            BTreeSet::new()
+        } else {
+            learn_descriptions(reference, &unit_words)
+        };
+        for d in &learned {
+            descriptions.entry(d.clone()).or_insert_with(|| d.clone());
+        }
+        let mut vocabulary: std::collections::HashSet<String> = unit_words
+            .iter()
+            .flatten()
+            .map(|t| t.text.clone())
+            .collect();
+        for a in &reference.aliases {
+            vocabulary.extend(tokens(&a.alias).into_iter().map(|t| t.text));
+        }
+        let mut rewrites = HashMap::new();
+        for a in abbreviations() {
+            let (has_short, has_long) = (vocabulary.contains(a.short), vocabulary.contains(a.long));
+            if has_long && !has_short {
+                rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
+            } else if has_short && !has_long {
+                rewrites.insert(
+                    a.long.to_string(),
+                    (a.short.to_string(), AbbreviationUse::Always),
+                );
+            }
+        }
+        let mut description_words: Vec<(String, String)> = descriptions
+            .iter()
+            .filter(|(form, _)| form.chars().count() >= 5)
+            .map(|(f, c)| (f.clone(), c.clone()))
+            .collect();
+        description_words.sort();
         let mut m = Matcher {
             vintage,
             codes,
+            us_rules,
+            vocabulary,
+            rewrites,
+            description_words,
+            learned,
             entries: Vec::with_capacity(reference.units.len()),
             by_bare: HashMap::new(),
             by_alias: HashMap::new(),
@@ -336,20 +499,34 @@ impl<'r> Matcher<'r> {
             changes_from: HashMap::new(),
             changes_to: HashMap::new(),
         };
-        for u in &reference.units {
+        for (u, words) in reference.units.iter().zip(unit_words) {
             let desc = key(&u.description);
-            let entry = Entry {
+            let whole = compact(&words);
+            let mut entry = Entry {
                 code: u.code.clone(),
                 name: u.name.clone(),
                 full_name: u.full_name(),
-                bare: key(&u.name),
+                bare: whole.clone(),
                 desc: m.descriptions.get(&desc).cloned().unwrap_or(desc),
                 parent: u.parent.clone(),
                 valid: u.valid,
                 current: u.valid.contains(vintage),
+                words: words.iter().map(|t| t.text.clone()).collect(),
+                learned: false,
             };
+            if entry.desc.is_empty() {
+                if let Some((range, d)) = m.learned_cut(&words) {
+                    entry.bare = compact(&words[range.clone()]);
+                    entry.words = words[range].iter().map(|t| t.text.clone()).collect();
+                    entry.desc = d;
+                    entry.learned = true;
+                }
+            }
             let i = m.entries.len();
             m.by_bare.entry(entry.bare.clone()).or_default().push(i);
+            if entry.learned {
+                m.by_bare.entry(whole).or_default().push(i);
+            }
             if entry.current {
                 m.by_code.entry(entry.code.clone()).or_insert(i);
                 m.current.push(i);
@@ -373,17 +550,7 @@ impl<'r> Matcher<'r> {
             }
         }
         for p in &reference.parents {
-            m.parent_names.insert(p.code.clone(), p.name.clone());
-            if let Some(short) = &p.short {
-                m.parent_short.insert(p.code.clone(), short.clone());
-            }
-            let forms = std::iter::once(&p.name)
-                .chain(&p.short)
-                .chain(&p.abbreviations)
-                .chain(std::iter::once(&p.code));
-            for f in forms {
-                m.parents.entry(key(f)).or_insert_with(|| p.code.clone());
-            }
+            m.add_parent(p, &p.code);
         }
         if reference.parents.is_empty() {
             for e in &m.entries {
@@ -401,6 +568,86 @@ impl<'r> Matcher<'r> {
             m.changes_to.entry(c.to_code.clone()).or_default().push(c);
         }
         m
+    }
+
+    /// Registers the written forms of `p` (name, short code,
+    /// abbreviations, code) as forms of the parent `code`.
+    fn add_parent(&mut self, p: &Parent, code: &str) {
+        self.parent_names
+            .entry(code.to_string())
+            .or_insert_with(|| p.name.clone());
+        if let Some(short) = &p.short {
+            self.parent_short
+                .entry(code.to_string())
+                .or_insert_with(|| short.clone());
+        }
+        let forms = std::iter::once(&p.name)
+            .chain(&p.short)
+            .chain(&p.abbreviations)
+            .chain(std::iter::once(&p.code));
+        for f in forms {
+            let k = key(f);
+            if !k.is_empty() {
+                self.parents.entry(k).or_insert_with(|| code.to_string());
+            }
+        }
+    }
+
+    /// Lets a user's list whose parents are states of `known` (US states:
+    /// their codes, postal codes or names in the list's parent column) read
+    /// every written form of those states: "California", "CA", "Calif.",
+    /// "06" and "6" all reach the parent however the list writes it.
+    /// Applies only when every parent of the list is one of `known`;
+    /// otherwise (another country's regions, say) nothing changes.
+    pub fn recognize_parents(&mut self, known: &[Parent]) {
+        let codes: BTreeSet<String> = self.parents.values().cloned().collect();
+        if codes.is_empty() {
+            return;
+        }
+        let mut found: Vec<(&Parent, String)> = Vec::new();
+        for code in &codes {
+            let name_key = self.parent_names.get(code).map(|n| key(n));
+            let hit = known.iter().find(|p| {
+                let forms: Vec<String> = std::iter::once(&p.name)
+                    .chain(&p.short)
+                    .chain(std::iter::once(&p.code))
+                    .map(|f| key(f))
+                    .collect();
+                forms.contains(&key(code)) || name_key.as_ref().is_some_and(|n| forms.contains(n))
+            });
+            match hit {
+                Some(p) => found.push((p, code.clone())),
+                None => return,
+            }
+        }
+        for (p, code) in found {
+            self.add_parent(p, &code);
+        }
+    }
+
+    /// The words of a list's name to keep when a learned description is
+    /// taken off ("Provincia di Roma" -> "Roma", "Kreis Steinfurt" ->
+    /// "Steinfurt", "Bo District" -> "Bo"), with the description.
+    fn learned_cut(&self, words: &[Token]) -> Option<(std::ops::Range<usize>, String)> {
+        let n = words.len();
+        if n < 2 || self.learned.is_empty() {
+            return None;
+        }
+        if self.learned.contains(&words[0].text) {
+            let mut k = 1;
+            while k < n - 1 && k < 3 && is_connector(&words[k].text) {
+                k += 1;
+            }
+            return Some((k..n, words[0].text.clone()));
+        }
+        if self.learned.contains(&words[n - 1].text) {
+            let mut k = n - 1;
+            while k > 1 && n - k < 3 && is_connector(&words[k - 1].text) {
+                k -= 1;
+            }
+            return Some((0..k, words[n - 1].text.clone()));
+        }
+        None
     }
 
     /// The vintage year the matcher answers for.
@@ -511,6 +758,12 @@ impl<'r> Matcher<'r> {
     /// Resolves one name (and the state column's value, if there is one).
     pub fn resolve(&self, name: &str, state: Option<&str>) -> Resolution {
         let name = name.trim();
+        if name.chars().nth(MAX_NAME_CHARS).is_some() {
+            return Resolution::unmatched(
+                format!("longer than {MAX_NAME_CHARS} characters: not a place name"),
+                Vec::new(),
+            );
+        }
         let state = match state.map(str::trim).filter(|s| !s.is_empty()) {
             None => None,
             Some(s) => match self.parent_of(s) {
@@ -548,6 +801,9 @@ impl<'r> Matcher<'r> {
         }
         let words = tokens(name);
         let readings = self.readings(&words, state.as_deref());
+        // Abbreviated words read as the reference writes them ("Mt." ->
+        // "mount"); the state forms of the readings keep the written words.
+        let words = self.rewritten(words);
         // Exact names first in every reading; near misses only when no
         // reading has an exact name (a near miss in one reading never beats
         // an exact name in another, and the costly scoring runs only then).
@@ -579,9 +835,39 @@ impl<'r> Matcher<'r> {
         self.check_state_name(name, state.as_deref(), grade, best)
     }
 
+    /// Abbreviated words in the form the reference uses (see `rewrites`).
+    fn rewritten(&self, mut words: Vec<Token>) -> Vec<Token> {
+        if self.rewrites.is_empty() {
+            return words;
+        }
+        for t in &mut words {
+            if let Some((to, when)) = self.rewrites.get(&t.text) {
+                let applies = match when {
+                    AbbreviationUse::Always => true,
+                    AbbreviationUse::UpperOrDot => t.upper || t.dotted,
+                    AbbreviationUse::Dot => t.dotted,
+                };
+                if applies {
+                    t.text.clone_from(to);
+                }
+            }
+        }
+        words
+    }
+
+    /// The only unit of a parent that has one unit in the vintage, when it
+    /// is coextensive with its parent (the District of Columbia, Guam).
+    fn sole_unit(&self, parent: &str) -> Option<usize> {
+        match self.by_parent.get(parent).map(Vec::as_slice) {
+            Some([i]) if self.entries[*i].desc.is_empty() => Some(*i),
+            _ => None,
+        }
+    }
+
     /// A bare name that is also the name of a state ("New York" in NY,
     /// "Hawaii") could mean the state total: review rather than match; a
-    /// state name that matched nothing is said to be a state.
+    /// state name that matched nothing is said to be a state, unless the
+    /// state is one unit ("D.C." is the District of Columbia). US rules.
     fn check_state_name(
         &self,
         name: &str,
@@ -589,12 +875,27 @@ impl<'r> Matcher<'r> {
         grade: Grade,
         r: Resolution,
     ) -> Resolution {
-        if !self.has_parents() {
+        if !self.has_parents() || !self.us_rules {
             return r;
         }
         let Some(parent) = self.parents.get(&key(name)) else {
             return r;
         };
+        if grade <= Grade::Doubtful && state.is_none_or(|s| s == parent.as_str()) {
+            if let Some(i) = self.sole_unit(parent) {
+                let e = &self.entries[i];
+                return Resolution::matched(
+                    &e.code,
+                    &e.full_name,
+                    Method::Variant,
+                    1.0,
+                    format!(
+                        "{name:?} names {}, whose only unit this is",
+                        self.place(Some(parent))
+                    ),
+                );
+            }
+        }
         if grade <= Grade::Doubtful {
             // No unit has this name; near misses of a state name are noise.
             return Resolution::unmatched(
@@ -660,36 +961,108 @@ impl<'r> Matcher<'r> {
         out
     }
 
+    /// The canonical description that `words` stand for: a description
+    /// form, a misspelled one within a few edits ("Cuonty", "Parrish",
+    /// "Burrough", "Munisipio"), or an abbreviation of a description learned
+    /// from a user's list ("Prov." for "Provincia"). A word that is part of
+    /// some name of the reference is never read as a misspelling.
+    fn description_of(&self, words: &[Token]) -> Option<&str> {
+        if words.is_empty() {
+            return None;
+        }
+        if let Some(d) = self.descriptions.get(&compact(words)) {
+            return Some(d);
+        }
+        let [w] = words else { return None };
+        let w_text = w.text.as_str();
+        if self.vocabulary.contains(w_text) || w_text.chars().any(|c| c.is_ascii_digit()) {
+            return None;
+        }
+        let len = w_text.chars().count();
+        let allowed = description_edits(len);
+        if allowed > 0 {
+            let mut best: Option<(usize, &str)> = None;
+            for (form, canonical) in &self.description_words {
+                let d = edits(w_text, form, allowed);
+                if d <= allowed && best.is_none_or(|(b, _)| d < b) {
+                    best = Some((d, canonical));
+                }
+            }
+            if let Some((_, c)) = best {
+                return Some(c);
+            }
+        }
+        if len >= 3 || (len >= 2 && w.dotted) {
+            return self
+                .learned
+                .iter()
+                .find(|d| abbreviates(w_text, d))
+                .map(String::as_str);
+        }
+        None
+    }
+
     /// Cuts of a name into bare part and description: the whole name first
     /// (so "District of Columbia" and "Carson City" are names, not a
-    /// description), then an inverted form, then a trailing description.
+    /// description), then a leading description with its connecting words
+    /// ("County of Los Angeles", "Municipio Autónomo de Ponce", "Provincia
+    /// di Roma"), an inverted form ("Falls Church, City of"), then a
+    /// trailing description ("Dekalb Co.", "Jefferson Parrish").
     fn splits(&self, words: &[Token]) -> Vec<Split> {
         let n = words.len();
         let mut out = vec![Split {
             bare: compact(words),
             desc: None,
+            range: 0..n,
         }];
-        if let Some(j) = words.iter().position(|w| w.text == "of") {
-            if (1..=4).contains(&j) && j + 1 < n {
-                let head = compact(&words[..j]);
-                let bare = compact(&words[j + 1..]);
-                if head == "cityandcounty" || head == "state" || head == "commonwealth" {
-                    out.push(Split { bare, desc: None });
-                } else if let Some(d) = self.descriptions.get(&head) {
-                    out.push(Split {
-                        bare,
-                        desc: Some(d.clone()),
-                    });
+        let mut push = |range: std::ops::Range<usize>, desc: Option<&str>| {
+            if !range.is_empty() {
+                out.push(Split {
+                    bare: compact(&words[range.clone()]),
+                    desc: desc.map(str::to_string),
+                    range,
+                });
+            }
+        };
+        for j in (1..=3.min(n.saturating_sub(1))).rev() {
+            let head = compact(&words[..j]);
+            let desc = if head == "cityandcounty"
+                || (self.us_rules && (head == "state" || head == "commonwealth"))
+            {
+                Some(None)
+            } else {
+                self.description_of(&words[..j]).map(Some)
+            };
+            if let Some(d) = desc {
+                let mut k = j;
+                push(k..n, d);
+                while k + 1 < n && k < j + 2 && is_connector(&words[k].text) {
+                    k += 1;
+                    push(k..n, d);
+                }
+                break;
+            }
+        }
+        if n >= 3 && words[n - 1].text == "of" {
+            for k in (1..=3).rev() {
+                if k + 1 < n {
+                    if let Some(d) = self.description_of(&words[n - 1 - k..n - 1]) {
+                        push(0..n - 1 - k, Some(d));
+                        break;
+                    }
                 }
             }
         }
         for k in (1..=3).rev() {
             if k < n {
-                if let Some(d) = self.descriptions.get(&compact(&words[n - k..])) {
-                    out.push(Split {
-                        bare: compact(&words[..n - k]),
-                        desc: Some(d.clone()),
-                    });
+                if let Some(d) = self.description_of(&words[n - k..]) {
+                    let mut end = n - k;
+                    // "Roma (Provincia di)" has no connector at the end;
+                    // "Provincia di" at the end drops the "di" above.
+                    while end > 1 && n - end < k + 2 && is_connector(&words[end - 1].text) {
+                        end -= 1;
+                    }
+                    push(0..end, Some(d));
                     break;
                 }
             }
@@ -714,7 +1087,18 @@ impl<'r> Matcher<'r> {
     /// Keeps the hits whose description answers `desc`; when none does, the
     /// description is noise, except "city" (returns `None`: rejected).
     fn by_description(&self, hits: Vec<usize>, desc: Option<&str>) -> Option<Vec<usize>> {
-        let Some(d) = desc else { return Some(hits) };
+        let Some(d) = desc else {
+            // A name as written beats a name found by taking a learned
+            // description off ("Roma" is the city, not "Provincia di Roma").
+            if hits.iter().any(|&i| !self.entries[i].learned) {
+                return Some(
+                    hits.into_iter()
+                        .filter(|&i| !self.entries[i].learned)
+                        .collect(),
+                );
+            }
+            return Some(hits);
+        };
         let kept: Vec<usize> = hits
             .iter()
             .copied()
@@ -722,7 +1106,7 @@ impl<'r> Matcher<'r> {
             .collect();
         if !kept.is_empty() {
             Some(kept)
-        } else if d == "city" && !hits.is_empty() {
+        } else if self.us_rules && d == "city" && !hits.is_empty() {
             None
         } else {
             Some(hits)
@@ -801,13 +1185,39 @@ impl<'r> Matcher<'r> {
                 ),
             );
         }
-        // "County" left over from "Washington County" read as WA + "County"
-        // (Island County, WA is found above by its name).
-        if self.descriptions.contains_key(&compact(words)) {
+        let only_description = self.description_of(words).is_some();
+        // "District" with the state DC: the state's only unit.
+        if only_description {
+            if let Some(i) = state.and_then(|s| self.sole_unit(s)) {
+                let e = &self.entries[i];
+                return (
+                    Grade::Sure,
+                    Resolution::matched(
+                        &e.code,
+                        &e.full_name,
+                        Method::Variant,
+                        1.0,
+                        format!("the only unit of {}", self.place(state)),
+                    ),
+                );
+            }
+            // "County" left over from "Washington County" read as WA +
+            // "County" (Island County, WA is found above by its name).
             return (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),
             );
+        }
+        if !fuzzy {
+            return (
+                Grade::Nothing,
+                Resolution::unmatched("no exact name", Vec::new()),
+            );
+        }
+        // Abbreviated or shortened words ("Lower CT River Valley", "Lake &
+        // Pen.", "Prince of Wales" for Prince of Wales-Hyder).
+        if let Some(found) = self.shortened(words, &splits, state) {
+            return found;
         }
         // Fuzzy on the name without its description when it has one.
         let primary = splits
@@ -817,16 +1227,113 @@ impl<'r> Matcher<'r> {
             .or(splits.first())
             .cloned();
         match primary {
-            Some(split) if fuzzy => self.fuzzy(&split, state),
-            Some(_) => (
-                Grade::Nothing,
-                Resolution::unmatched("no exact name", Vec::new()),
-            ),
+            Some(split) => self.fuzzy(&split, state),
             None => (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),
             ),
         }
+    }
+
+    /// A name whose words are, in order, the leading words of exactly one
+    /// unit's name, each equal or an abbreviation of it ("Lower CT River
+    /// Valley" = Lower Connecticut River Valley, "Lake and Pen." = Lake and
+    /// Peninsula), or the unit's name shortened to its first words when they
+    /// carry at least half its letters ("Prince of Wales" = Prince of
+    /// Wales-Hyder). Within a state; without a state only whole names
+    /// (every word present) count, unique in the country.
+    fn shortened(
+        &self,
+        words: &[Token],
+        splits: &[Split],
+        state: Option<&str>,
+    ) -> Option<(Grade, Resolution)> {
+        let national = state.is_none() && self.has_parents();
+        let pool: &[usize] = match state {
+            Some(s) => self.by_parent.get(s).map_or(&[], Vec::as_slice),
+            None => &self.current,
+        };
+        for split in splits {
+            let q: Vec<&str> = words[split.range.clone()]
+                .iter()
+                .map(|t| t.text.as_str())
+                .collect();
+            if q.is_empty() {
+                continue;
+            }
+            let q_letters: usize = q.iter().map(|w| w.chars().count()).sum();
+            let mut found: Vec<usize> = Vec::new();
+            for &i in pool {
+                let e = &self.entries[i];
+                if split
+                    .desc
+                    .as_deref()
+                    .is_some_and(|d| !compatible(d, &e.desc))
+                {
+                    continue;
+                }
+                let u = &e.words;
+                if q.len() > u.len() || (national && q.len() != u.len()) {
+                    continue;
+                }
+                let mut abbreviated = 0;
+                let fits = q.iter().zip(u).all(|(a, b)| {
+                    if a == b {
+                        true
+                    } else if abbreviates(a, b) {
+                        abbreviated += 1;
+                        true
+                    } else {
+                        false
+                    }
+                });
+                if !fits {
+                    continue;
+                }
+                let u_letters: usize = u.iter().map(|w| w.chars().count()).sum();
+                let whole = q.len() == u.len();
+                let exact_words = q.len() - abbreviated;
+                let ok = if whole {
+                    abbreviated > 0 && (exact_words >= 1 || q.len() >= 2)
+                } else {
+                    abbreviated == 0 && 2 * q_letters >= u_letters && q_letters >= 5
+                };
+                if ok {
+                    found.push(i);
+                }
+            }
+            found.dedup_by(|a, b| self.entries[*a].code == self.entries[*b].code);
+            match found.as_slice() {
+                [] => continue,
+                [i] => {
+                    let e = &self.entries[*i];
+                    return Some((
+                        Grade::Fuzzy,
+                        Resolution::matched(
+                            &e.code,
+                            &e.full_name,
+                            Method::Variant,
+                            1.0,
+                            format!(
+                                "read as an abbreviated or shortened form of {}",
+                                e.full_name
+                            ),
+                        ),
+                    ));
+                }
+                several => {
+                    let c = several.iter().map(|&i| self.candidate(i, 1.0)).collect();
+                    return Some((
+                        Grade::Doubtful,
+                        Resolution::review(
+                            "an abbreviated or shortened form of several units".into(),
+                            c,
+                        ),
+                    ));
+                }
+            }
+        }
+        None
     }
 
     /// Outcome of exact hits (current and other eras) for one split.
@@ -1081,6 +1588,38 @@ impl<'r> Matcher<'r> {
                 compatible(d, &e.desc) || !answered.contains(&e.bare)
             });
         }
+        let floors = if never_accept {
+            TYPO_FLOORS_NATIONAL
+        } else {
+            TYPO_FLOORS_IN_STATE
+        };
+        if let Some((i, n)) = self.typo(&scored, &split.bare, floors) {
+            let e = &self.entries[i];
+            let city_mismatch =
+                split.desc.as_deref() == Some("city") && !compatible("city", &e.desc);
+            if !city_mismatch {
+                let score = scored.iter().find(|(j, _)| *j == i).map_or(0.0, |x| x.1);
+                let (edit_word, apart) = if n == 1 {
+                    ("edit", "three")
+                } else {
+                    ("edits", "four")
+                };
+                return (
+                    Grade::Fuzzy,
+                    Resolution::matched(
+                        &e.code,
+                        &e.full_name,
+                        Method::Fuzzy,
+                        score,
+                        format!(
+                            "{n} {edit_word} from {}; every other unit of {} at least {apart} edits away",
+                            e.full_name,
+                            self.place(state)
+                        ),
+                    ),
+                );
+            }
+        }
         scored.retain(|(_, s)| *s >= LIST_SCORE);
         let candidates: Vec<Candidate> = scored
             .iter()
@@ -1127,6 +1666,48 @@ impl<'r> Matcher<'r> {
                 candidates,
             ),
         )
+    }
+
+    /// The typo rule: the unit of `scored` (the block, ranked by
+    /// Jaro-Winkler) within one edit (names of `floors.0`+ letters) or two
+    /// (`floors.1`+ letters) of `query`, when every other unit of the block
+    /// is at least two edits further and Jaro-Winkler ranks it first too.
+    /// Returns the entry and its edit count.
+    fn typo(
+        &self,
+        scored: &[(usize, f64)],
+        query: &str,
+        floors: (usize, usize),
+    ) -> Option<(usize, usize)> {
+        let &(top, top_score) = scored.first()?;
+        if query.chars().count() < floors.0.saturating_sub(1) {
+            return None;
+        }
+        const CAP: usize = 4;
+        let mut best: Option<(usize, usize)> = None;
+        let mut second = CAP + 1;
+        for &(i, _) in scored {
+            let d = edits(query, &self.entries[i].bare, CAP);
+            match best {
+                Some((b, bi)) if d < b => {
+                    if self.entries[bi].code != self.entries[i].code {
+                        second = second.min(b);
+                    }
+                    best = Some((d, i));
+                }
+                Some((_, bi)) => {
+                    if self.entries[bi].code != self.entries[i].code {
+                        second = second.min(d);
+                    }
+                }
+                None => best = Some((d, i)),
+            }
+        }
+        let (d, i) = best?;
+        let letters = self.entries[i].bare.chars().count();
+        let long_enough = (d == 1 && letters >= floors.0) || (d == 2 && letters >= floors.1);
+        let jw_agrees = i == top || scored.iter().any(|&(j, s)| j == i && s >= top_score);
+        (long_enough && second >= d + 2 && jw_agrees && top_score >= REVIEW_SCORE).then_some((i, d))
     }
 
     fn resolve_code(&self, text: &str, state: Option<&str>) -> Resolution {
@@ -1239,6 +1820,48 @@ impl<'r> Matcher<'r> {
             .filter(|&i| self.entries[i].bare == bare && self.in_state(i, state))
             .collect()
     }
+}
+
+/// Words that begin or end many place names but are part of the name, not
+/// a description ("Saint-Jean", "San Jose", "Lake Forest", "Kansas City",
+/// and the long forms of `reference/abbreviations.csv`): never learned as
+/// descriptions. Common practice.
+const NAME_WORDS: &[&str] = &[
+    "saint", "san", "santa", "santo", "sao", "new", "city", "old", "upper", "lower", "great",
+    "little", "big", "bad", "le", "la", "el", "los", "las",
+];
+
+/// Description words of a user's list: words that begin or end at least
+/// two of its names and are in [`DESCRIPTION_LEXICON`], or at least three
+/// and a fifth of its names (see the constants for what is never learned).
+fn learn_descriptions(reference: &Reference, unit_words: &[Vec<Token>]) -> BTreeSet<String> {
+    let mut counts: BTreeMap<&str, BTreeSet<&str>> = BTreeMap::new();
+    let mut names: BTreeSet<&str> = BTreeSet::new();
+    for (u, words) in reference.units.iter().zip(unit_words) {
+        names.insert(u.code.as_str());
+        if words.len() < 2 {
+            continue;
+        }
+        for w in [&words[0], &words[words.len() - 1]] {
+            counts
+                .entry(w.text.as_str())
+                .or_default()
+                .insert(u.code.as_str());
+        }
+    }
+    let total = names.len();
+    counts
+        .into_iter()
+        .filter(|(w, codes)| {
+            let n = codes.len();
+            let generic = NAME_WORDS.contains(w)
+                || is_connector(w)
+                || w.chars().any(|c| c.is_ascii_digit())
+                || abbreviations().iter().any(|a| a.long == *w);
+            !generic && ((DESCRIPTION_LEXICON.contains(w) && n >= 2) || (n >= 3 && n * 5 >= total))
+        })
+        .map(|(w, _)| w.to_string())
+        .collect()
 }
 
 /// Scores `query` against the bare names of `pool`, best first (ties by
