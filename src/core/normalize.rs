@@ -444,6 +444,60 @@ mod tests {
     }
 
     #[test]
+    fn the_abbreviation_table_parses_and_names_a_source_for_every_pair() {
+        let table = abbreviations();
+        let rows = ABBREVIATIONS_CSV
+            .lines()
+            .skip(1)
+            .filter(|l| !l.trim().is_empty());
+        assert_eq!(table.len(), rows.clone().count(), "a malformed row");
+        for row in rows {
+            let source = row.splitn(4, ',').nth(3).unwrap_or("");
+            assert!(
+                source.contains("USPS Publication 28") || source.contains("common practice"),
+                "{row}"
+            );
+        }
+        // Normalized words on both sides, and no short form used twice.
+        let mut shorts = std::collections::HashSet::new();
+        for a in table {
+            // ("ft" is read as "fort" by the tokenizer already.)
+            assert!(
+                key(a.short) == a.short || key(a.short) == a.long,
+                "{}",
+                a.short
+            );
+            assert_eq!(key(a.long), a.long);
+            assert!(shorts.insert(a.short), "{} twice", a.short);
+        }
+        let mt = table.iter().find(|a| a.short == "mt").unwrap();
+        assert_eq!((mt.long, mt.when), ("mount", AbbreviationUse::Always));
+    }
+
+    #[test]
+    fn single_letter_compass_words_need_capitals_or_a_period() {
+        let e = abbreviations().iter().find(|a| a.short == "e").unwrap();
+        let t = tokens("E. Orange");
+        assert!(t[0].dotted && e.applies_to(&t[0]));
+        assert!(e.applies_to(&tokens("E BATON ROUGE")[0]));
+        // The Italian "e" (and) of "Pesaro e Urbino" is no compass word.
+        assert!(!e.applies_to(&tokens("Pesaro e Urbino")[1]));
+        let no = abbreviations().iter().find(|a| a.short == "no").unwrap();
+        assert!(no.applies_to(&tokens("No. Platte")[0]));
+        assert!(!no.applies_to(&tokens("NO PLATTE")[0]));
+    }
+
+    #[test]
+    fn a_french_elision_ends_its_one_letter_word_but_keeps_the_key() {
+        assert_eq!(
+            words("Département de l'Ain"),
+            ["departement", "de", "l", "ain"]
+        );
+        assert_eq!(key("Val-d'Oise"), "valdoise");
+        assert_eq!(words("Prince George's"), ["prince", "georges"]);
+    }
+
+    #[test]
     fn placeholders_are_recognized_in_any_spelling() {
         for p in [
             "Statewide",
@@ -460,6 +514,71 @@ mod tests {
         }
         for p in ["Cook", "Washington", "Otero"] {
             assert!(!is_placeholder(p), "{p:?}");
+        }
+    }
+}
+
+#[cfg(test)]
+mod edit_tests {
+    use super::*;
+
+    /// Naive twin: the textbook optimal-string-alignment distance, uncapped.
+    fn osa(a: &str, b: &str) -> usize {
+        let a: Vec<char> = a.chars().collect();
+        let b: Vec<char> = b.chars().collect();
+        let mut d = vec![vec![0usize; b.len() + 1]; a.len() + 1];
+        for (i, row) in d.iter_mut().enumerate() {
+            row[0] = i;
+        }
+        for (j, x) in d[0].iter_mut().enumerate() {
+            *x = j;
+        }
+        for i in 1..=a.len() {
+            for j in 1..=b.len() {
+                let cost = usize::from(a[i - 1] != b[j - 1]);
+                d[i][j] = (d[i - 1][j] + 1)
+                    .min(d[i][j - 1] + 1)
+                    .min(d[i - 1][j - 1] + cost);
+                if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                    d[i][j] = d[i][j].min(d[i - 2][j - 2] + 1);
+                }
+            }
+        }
+        d[a.len()][b.len()]
+    }
+
+    #[test]
+    fn capped_edits_agree_with_the_textbook_distance() {
+        let words = [
+            "",
+            "a",
+            "ravenna",
+            "ravnna",
+            "bergamo",
+            "beragmo",
+            "county",
+            "cuonty",
+            "countey",
+            "parish",
+            "parrish",
+            "borough",
+            "burrough",
+            "municipio",
+            "munisipio",
+            "mayagüez",
+            "mayaguez",
+            "ab",
+            "ba",
+            "abc",
+            "ca",
+        ];
+        for a in words {
+            for b in words {
+                for cap in 0..5 {
+                    let want = osa(a, b).min(cap + 1);
+                    assert_eq!(edits(a, b, cap), want, "{a} {b} cap {cap}");
+                }
+            }
         }
     }
 }
