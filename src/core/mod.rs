@@ -2,11 +2,16 @@
 //! the terminal or knows about the command line.
 
 pub mod allocate;
+pub mod audit;
 pub mod chain;
+pub mod composite;
 pub mod crosswalk;
+pub mod decisions;
 pub mod fips;
 pub mod geodesy;
+pub mod group;
 pub mod history;
+pub mod match_table;
 pub mod matcher;
 pub mod normalize;
 pub mod overlay;

@@ -2,9 +2,11 @@
 //! output, or the terminal lives here; the computation lives in [`crate::core`].
 
 pub mod builtin;
+pub mod composites;
 pub mod crosswalk_file;
 pub mod data;
 pub mod geo;
+pub mod html;
 pub mod output;
 pub mod progress;
 pub mod review;
