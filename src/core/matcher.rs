@@ -274,9 +274,14 @@ const US_DESCRIPTIONS: &[(&str, &str)] = &[
     ("city and borough", "cityandborough"),
     ("municipality", "municipality"),
     ("muni", "municipality"),
+    ("mun", "municipio"),
+    ("mpio", "municipio"),
     ("municipio", "municipio"),
     ("municipio autonomo", "municipio"),
     ("planning region", "planningregion"),
+    ("plan region", "planningregion"),
+    ("planning reg", "planningregion"),
+    ("plng region", "planningregion"),
     ("district", "district"),
     ("island", "island"),
 ];
@@ -357,6 +362,36 @@ fn abbreviates(short: &str, long: &str) -> bool {
         return false;
     }
     s.all(|c| l.any(|x| x == c))
+}
+
+/// True when the written words stand for the description `phrase` (its
+/// words): in order, the first word first, each word equal to its phrase
+/// word or abbreviating it (three letters or more, or marked by a period),
+/// phrase words may be left out ("Libero consorzio" for "Libero consorzio
+/// comunale"); or one word of the initials of the phrase's words other
+/// than connecting words ("EDR" for "Ente di decentramento regionale").
+fn phrase_matches(words: &[Token], phrase: &[String]) -> bool {
+    let fits = |w: &Token, p: &str| {
+        w.text == p || ((w.text.chars().count() >= 3 || w.dotted) && abbreviates(&w.text, p))
+    };
+    if let [w] = words {
+        let initials: String = phrase
+            .iter()
+            .filter(|p| !is_connector(p))
+            .filter_map(|p| p.chars().next())
+            .collect();
+        if initials.chars().count() >= 2 && w.text == initials {
+            return true;
+        }
+    }
+    let (Some(first), Some(p0)) = (words.first(), phrase.first()) else {
+        return false;
+    };
+    if !fits(first, p0) {
+        return false;
+    }
+    let mut rest = phrase[1..].iter();
+    words[1..].iter().all(|w| rest.by_ref().any(|p| fits(w, p)))
 }
 
 /// Edits a word of `len` letters may carry and still be read as a
@@ -453,11 +488,21 @@ impl<'r> Matcher<'r> {
         let unit_words: Vec<Vec<Token>> = reference.units.iter().map(|u| tokens(&u.name)).collect();
         // A user's list: words that begin or end many of its names are
         // descriptions there ("Provincia di", "Landkreis", "District").
-        let learned: BTreeMap<String, Vec<String>> = if us_rules {
+        let mut learned: BTreeMap<String, Vec<String>> = if us_rules {
             BTreeMap::new()
         } else {
             learn_descriptions(reference, &unit_words)
         };
+        if !us_rules {
+            // The list's description column is its own description words too.
+            for u in &reference.units {
+                let words: Vec<String> =
+                    tokens(&u.description).into_iter().map(|t| t.text).collect();
+                if !words.is_empty() {
+                    learned.entry(words.concat()).or_insert(words);
+                }
+            }
+        }
         for d in learned.keys() {
             descriptions.entry(d.clone()).or_insert_with(|| d.clone());
         }
@@ -497,11 +542,9 @@ impl<'r> Matcher<'r> {
                 rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
             } else if has_long && a.when != AbbreviationUse::Always {
                 // Both forms are words of the list ("Town 'n' Country" and
-                // "North Little Rock"): only the period marks "N." as North.
-                rewrites.insert(
-                    a.short.to_string(),
-                    (a.long.to_string(), AbbreviationUse::Dot),
-                );
+                // "North Little Rock"): only a capital or a period marks "N"
+                // as North.
+                rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
             } else if has_short && !has_long {
                 rewrites.insert(
                     a.long.to_string(),
@@ -515,7 +558,7 @@ impl<'r> Matcher<'r> {
         let mut description_words: Vec<(String, String)> = descriptions
             .iter()
             .filter(|(form, _)| {
-                form.chars().count() >= 5
+                form.chars().count() >= 4
                     && (us_rules || !vocabulary.contains(*form) || learned.contains_key(*form))
             })
             .map(|(f, c)| (f.clone(), c.clone()))
@@ -644,38 +687,6 @@ impl<'r> Matcher<'r> {
         }
     }
 
-    /// Lets a user's list whose parents are states of `known` (US states:
-    /// their codes, postal codes or names in the list's parent column) read
-    /// every written form of those states: "California", "CA", "Calif.",
-    /// "06" and "6" all reach the parent however the list writes it.
-    /// Applies only when every parent of the list is one of `known`;
-    /// otherwise (another country's regions, say) nothing changes.
-    pub fn recognize_parents(&mut self, known: &[Parent]) {
-        let codes: BTreeSet<String> = self.parents.values().cloned().collect();
-        if codes.is_empty() {
-            return;
-        }
-        let mut found: Vec<(&Parent, String)> = Vec::new();
-        for code in &codes {
-            let name_key = self.parent_names.get(code).map(|n| key(n));
-            let hit = known.iter().find(|p| {
-                let forms: Vec<String> = std::iter::once(&p.name)
-                    .chain(&p.short)
-                    .chain(std::iter::once(&p.code))
-                    .map(|f| key(f))
-                    .collect();
-                forms.contains(&key(code)) || name_key.as_ref().is_some_and(|n| forms.contains(n))
-            });
-            match hit {
-                Some(p) => found.push((p, code.clone())),
-                None => return,
-            }
-        }
-        for (p, code) in found {
-            self.add_parent(p, &code);
-        }
-    }
-
     /// The words of a list's name to keep when a learned description is
     /// taken off ("Provincia di Roma" -> "Roma", "Kreis Steinfurt" ->
     /// "Steinfurt", "Bo District" -> "Bo"), with the description.
@@ -686,7 +697,7 @@ impl<'r> Matcher<'r> {
         if n < 2 || self.learned.is_empty() {
             return None;
         }
-        for j in (1..=2.min(n - 1)).rev() {
+        for j in (1..=4.min(n - 1)).rev() {
             let head = compact(&words[..j]);
             if self.learned.contains_key(&head) {
                 let mut k = j;
@@ -872,14 +883,22 @@ impl<'r> Matcher<'r> {
         // reading has an exact name (a near miss in one reading never beats
         // an exact name in another, and the costly scoring runs only then).
         let run = |fuzzy: bool| {
-            let outcomes: Vec<(Grade, Resolution)> = readings
+            let mut outcomes: Vec<(Grade, Resolution, bool)> = readings
                 .iter()
                 .map(|(range, reading_state)| {
                     let s = reading_state.as_deref().or(state.as_deref());
-                    self.resolve_reading(&words[range.clone()], s, fuzzy)
+                    let (g, r) = self.resolve_reading(&words[range.clone()], s, fuzzy);
+                    (g, r, reading_state.is_some())
                 })
                 .collect();
-            combine(outcomes)
+            // Near misses of a reading with the state written in the name
+            // ("Waler County, TX") are the ones to offer, not those of the
+            // whole country.
+            let top = outcomes.iter().map(|o| o.0).max().unwrap_or(Grade::Nothing);
+            if top <= Grade::Doubtful && outcomes.iter().any(|o| o.2 && o.0 == top) {
+                outcomes.retain(|o| o.2 || o.0 < top);
+            }
+            combine(outcomes.into_iter().map(|(g, r, _)| (g, r)).collect())
         };
         let (mut grade, mut best) = run(false);
         if grade < Grade::Ambiguous {
@@ -1037,32 +1056,51 @@ impl<'r> Matcher<'r> {
         if let Some(d) = self.descriptions.get(&compact(words)) {
             return Some(d);
         }
-        if words.len() > 1 {
-            // "Città metrop." for the learned "Città metropolitana".
-            return self
-                .learned
-                .iter()
-                .find(|(_, phrase)| {
-                    phrase.len() == words.len()
-                        && words.iter().zip(phrase.iter()).all(|(w, p)| {
-                            w.text == *p
-                                || ((w.text.len() >= 3 || w.dotted) && abbreviates(&w.text, p))
-                        })
-                })
-                .map(|(k, _)| k.as_str());
-        }
-        let [w] = words else { return None };
-        let w_text = w.text.as_str();
-        if self.vocabulary.contains(w_text) || w_text.chars().any(|c| c.is_ascii_digit()) {
+        if words
+            .iter()
+            .any(|w| w.text.chars().any(|c| c.is_ascii_digit()))
+        {
             return None;
         }
-        let len = w_text.chars().count();
-        let allowed = description_edits(len);
+        // The list's own descriptions, shortened ("Libero consorzio" for
+        // "Libero consorzio comunale"), abbreviated ("Città metrop.",
+        // "Prov Roma", "Dept Aisne") or as initials ("EDR" for "Ente di
+        // decentramento regionale").
+        if let Some((k, _)) = self
+            .learned
+            .iter()
+            .find(|(_, phrase)| phrase_matches(words, phrase))
+        {
+            return Some(k);
+        }
+        // Misspelled descriptions ("Cuonty", "Burrough", "Cencus Area"):
+        // some word is no word of the reference's names.
+        if words.iter().all(|w| self.vocabulary.contains(&w.text)) {
+            return None;
+        }
+        let text = compact(words);
+        let len = text.chars().count();
+        // Four letters allow one swap of neighbours ("ctiy").
+        let allowed = match description_edits(len) {
+            0 if len == 4 => 1,
+            n => n,
+        };
         if allowed > 0 {
             let mut best: Option<(usize, &str)> = None;
             for (form, canonical) in &self.description_words {
-                let d = edits(w_text, form, allowed);
-                if d <= allowed && best.is_none_or(|(b, _)| d < b) {
+                let d = edits(&text, form, allowed);
+                let short_form = form.chars().count() == 4;
+                if short_form != (len == 4) {
+                    continue;
+                }
+                let swap_only = len > 4 || {
+                    let (mut a, mut b): (Vec<char>, Vec<char>) =
+                        (text.chars().collect(), form.chars().collect());
+                    a.sort_unstable();
+                    b.sort_unstable();
+                    a == b
+                };
+                if d <= allowed && swap_only && best.is_none_or(|(b, _)| d < b) {
                     best = Some((d, canonical));
                 }
             }
@@ -1070,17 +1108,14 @@ impl<'r> Matcher<'r> {
                 return Some(c);
             }
         }
-        if !self.us_rules && (len >= 3 || (len >= 2 && w.dotted)) {
-            // The list's own descriptions abbreviated ("Prov Roma"); other
-            // description words only with the period that marks an
+        let [w] = words else { return None };
+        if !self.us_rules && w.dotted && len >= 2 {
+            // Other description words only with the period that marks an
             // abbreviation ("Dépt. Ain", but "Oast" is no "Oblast").
-            let lexicon = DESCRIPTION_LEXICON.iter().copied().filter(|_| w.dotted);
-            return self
-                .learned
-                .keys()
-                .map(String::as_str)
-                .chain(lexicon)
-                .find(|d| abbreviates(w_text, d));
+            return DESCRIPTION_LEXICON
+                .iter()
+                .copied()
+                .find(|d| abbreviates(&w.text, d));
         }
         None
     }
@@ -1107,7 +1142,7 @@ impl<'r> Matcher<'r> {
                 });
             }
         };
-        for j in (1..=3.min(n.saturating_sub(1))).rev() {
+        for j in (1..=4.min(n.saturating_sub(1))).rev() {
             let head = compact(&words[..j]);
             let desc = if head == "cityandcounty"
                 || (self.us_rules && (head == "state" || head == "commonwealth"))
@@ -1268,7 +1303,10 @@ impl<'r> Matcher<'r> {
                 ),
             );
         }
-        let only_description = self.description_of(words).is_some();
+        // (A misspelled description alone is more likely a misspelled
+        // name: "Rayown" is no "Rayon".)
+        let only_description = self.descriptions.contains_key(&compact(words))
+            || self.learned.values().any(|p| phrase_matches(words, p));
         // "District" with the state DC: the state's only unit.
         if only_description {
             if let Some(i) = state.and_then(|s| self.sole_unit(s)) {
@@ -1314,28 +1352,28 @@ impl<'r> Matcher<'r> {
                     self.vocabulary.contains(&w.text) && !self.learned.contains_key(&w.text)
                 })
         };
-        let primary = splits
+        let mut tries: Vec<&Split> = splits
             .iter()
             .filter(|s| !s.bare.is_empty())
-            .find(|s| s.desc.is_some() && (self.us_rules || !in_names(s)))
-            .or(splits.first())
-            .cloned();
-        let Some(split) = primary else {
-            return (
-                Grade::Nothing,
-                Resolution::unmatched("only a description, no name", Vec::new()),
-            );
-        };
-        let found = self.fuzzy(words, &split, state);
+            .filter(|s| s.desc.is_some() && (self.us_rules || !in_names(s)))
+            .collect();
         // A misspelled word read as a description may be part of the name
         // ("Counry Walk" is Country Walk): the whole name gets its turn.
-        if found.0 < Grade::Fuzzy && split.range != (0..words.len()) && !self.us_rules {
-            let whole = self.fuzzy(words, &splits[0], state);
-            if whole.0 >= Grade::Fuzzy {
-                return whole;
+        tries.push(&splits[0]);
+        let mut first: Option<(Grade, Resolution)> = None;
+        for split in tries {
+            let found = self.fuzzy(words, split, state);
+            if found.0 >= Grade::Fuzzy {
+                return found;
             }
+            first.get_or_insert(found);
         }
-        found
+        first.unwrap_or_else(|| {
+            (
+                Grade::Nothing,
+                Resolution::unmatched("only a description, no name", Vec::new()),
+            )
+        })
     }
 
     /// A name whose words are, in order, the leading words of exactly one
@@ -1689,7 +1727,7 @@ impl<'r> Matcher<'r> {
         let letters: Vec<&str> = words[split.range.clone()]
             .iter()
             .map(|t| t.text.as_str())
-            .filter(|w| w.chars().count() == 1)
+            .filter(|w| w.chars().count() == 1 && abbreviations().iter().any(|a| a.short == *w))
             .collect();
         self.rank_fuzzy(
             scored,
@@ -1780,7 +1818,7 @@ impl<'r> Matcher<'r> {
         // Westlake: not accepted).
         let nearest_agrees = near
             .as_ref()
-            .is_some_and(|n| n.entry == best_i && n.second > n.edits);
+            .is_some_and(|n| n.entry == best_i && n.second >= n.edits + 2);
         if !never_accept
             && !city_mismatch
             && nearest_agrees
@@ -1835,7 +1873,7 @@ impl<'r> Matcher<'r> {
         let letters = self.entries[i].bare.chars().count();
         let long_enough = (d == 1 && letters >= floors.0) || (d == 2 && letters >= floors.1);
         let jw_agrees = i == top || scored.iter().any(|&(j, s)| j == i && s >= top_score);
-        (long_enough && second >= d + 2 && jw_agrees && top_score >= REVIEW_SCORE).then_some((i, d))
+        (long_enough && second >= d + 2 && jw_agrees && top_score >= LIST_SCORE).then_some((i, d))
     }
 
     /// The entry of `scored` nearest to `query` by edits (counted up to
@@ -2015,8 +2053,10 @@ fn learn_descriptions(
                 .or_default()
                 .insert(u.code.as_str());
         }
-        for j in 1..=2.min(n - 2) {
-            if is_connector(&words[j].text) {
+        // The last connecting word within the first five words ends the
+        // phrase ("Ente di decentramento regionale di").
+        for j in (1..=4.min(n - 2)).rev() {
+            if is_connector(&words[j].text) && !is_connector(&words[j - 1].text) {
                 let head = compact(&words[..j]);
                 phrases
                     .entry(head.clone())
@@ -2044,7 +2084,8 @@ fn learn_descriptions(
         .map(|(w, _)| (w.clone(), vec![w]))
         .collect();
     for (w, codes) in marked {
-        if codes.len() >= 3 && !generic(&w) {
+        let several_words = phrases.get(&w).is_some_and(|p| p.len() >= 2);
+        if !generic(&w) && (codes.len() >= 3 || (several_words && codes.len() >= 2)) {
             let words = phrases.remove(&w).unwrap_or_default();
             out.insert(w, words);
         }
@@ -2385,31 +2426,6 @@ mod tests {
         let m = Matcher::new(&r, 0, CodeForm::Plain);
         let res = m.resolve("Houston city", Some("TX"));
         assert_eq!(res.code.as_deref(), Some("4699066"), "{res:?}");
-    }
-
-    #[test]
-    fn a_list_with_us_state_parents_reads_every_form_of_the_state() {
-        let r = list(&[
-            ("4699066", "Houston", "TX"),
-            ("5368361", "Los Angeles", "CA"),
-        ]);
-        let mut m = Matcher::new(&r, 0, CodeForm::Plain);
-        assert_eq!(m.parent_of("Texas"), None);
-        let states = [
-            parent("48", "TX", "Texas"),
-            parent("06", "CA", "California"),
-        ];
-        m.recognize_parents(&states);
-        for form in ["Texas", "TX", "48", "tx"] {
-            assert_eq!(m.parent_of(form).as_deref(), Some("TX"), "{form}");
-        }
-        assert_eq!(m.parent_of("6").as_deref(), Some("CA"));
-        // Parents that are not all US states are left alone (ISO 3166-2
-        // region codes of Italy, pycountry 26.2.16).
-        let r = list(&[("IT-RM", "Roma", "62"), ("IT-MI", "Milano", "25")]);
-        let mut m = Matcher::new(&r, 0, CodeForm::Plain);
-        m.recognize_parents(&[parent("25", "MA", "Massachusetts")]);
-        assert_eq!(m.parent_of("Massachusetts"), None);
     }
 
     #[test]
