@@ -17,6 +17,7 @@ use crate::core::matcher::{CodeForm, Matcher, Status};
 use crate::core::reference::Reference;
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::{read_reference_file, us_counties, us_states};
+use crate::io::composites::{as_aliases, read_composites_file};
 use crate::io::output::{write_to, Target};
 use crate::io::progress::Progress;
 use crate::io::review::{read_decisions, write_review, Decisions};
@@ -77,6 +78,12 @@ pub struct Args {
     /// valid_from, valid_to) instead of the built-in US one.
     #[arg(long, value_name = "FILE")]
     pub reference: Option<PathBuf>,
+
+    /// Your own composites (units reported as one): one row per composite with
+    /// `name` and `members` (codes joined by +), or a membership list with
+    /// `unit` and `group`; optional `state`. Added to the built-in ones (New York City).
+    #[arg(long, value_name = "FILE")]
+    pub composites: Option<PathBuf>,
 
     /// Decisions from an earlier review (a filled-in review file); they win over the matcher.
     #[arg(long, value_name = "FILE")]
@@ -234,6 +241,25 @@ pub fn configure(args: &Args, global: Global) -> Result<Config> {
             "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
         )));
     }
+    let source = match &args.composites {
+        None => source,
+        Some(path) => {
+            let named = read_composites_file(path)?;
+            let mut r = source.get().clone();
+            for c in named.items() {
+                if let Some(m) = c.members.iter().find(|m| r.eras(m).is_empty()) {
+                    return Err(Error::Usage(format!(
+                        "{}: composite {:?} ({}) names {m}, which is no unit of the reference",
+                        path.display(),
+                        c.name,
+                        c.source
+                    )));
+                }
+            }
+            r.aliases.extend(as_aliases(&named));
+            Source::File(r)
+        }
+    };
     Ok(Config {
         input: args.input.clone(),
         delimiter: args.delimiter,

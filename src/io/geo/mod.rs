@@ -13,6 +13,7 @@ use geo::Coord;
 use serde_json::Value;
 use sha2::{Digest, Sha256};
 
+use crate::core::fips::CodeForm;
 use crate::core::overlay::{RawFeature, Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -84,6 +85,42 @@ pub struct Layer {
     /// What the reader wants the user to know (records left out, ...),
     /// each naming the file; see [`Layer::notes`].
     pub warnings: Vec<String>,
+}
+
+/// How a layer's keys were read: the code form found in them and how many
+/// keys had a lost leading zero (or a spreadsheet tail) repaired.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct KeyReading {
+    /// The form detected ([`CodeForm::detect`]).
+    pub form: CodeForm,
+    /// Keys that were repaired (e.g. 2201 from an integer field -> 02201).
+    pub repaired: usize,
+}
+
+impl Layer {
+    /// Reads every key through the one code parser (`core::fips`): the form
+    /// is detected from all keys of the layer, so integer keys of a county
+    /// layer get their leading zero back ("1001" -> "01001") and user keys
+    /// that are not codes stay as written.
+    pub fn normalize_keys(&mut self) -> Result<KeyReading> {
+        let form = CodeForm::detect(self.features.iter().map(|f| f.key.as_str()));
+        let mut repaired = 0;
+        for f in &mut self.features {
+            let (code, repairs) = form.read(&f.key).map_err(|e| {
+                Error::input(
+                    Location::file(&self.path)
+                        .at_feature(f.number)
+                        .in_column(&self.key),
+                    format!("the key {:?} is not a code like the others: {e}", f.key),
+                )
+            })?;
+            if !repairs.is_empty() {
+                repaired += 1;
+            }
+            f.key = code.into_string();
+        }
+        Ok(KeyReading { form, repaired })
+    }
 }
 
 /// Pairs each feature's key with its polygons, numbering features from 1
