@@ -493,6 +493,8 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         skip_unweighted: false,
         output: arg(&harmonized),
         report: Some(apply_report.clone()),
+        split_by: super::group::WeightBy::Area,
+        population: None,
     };
     let config = super::apply::Config::from_args(&apply)?;
     let done = super::apply::execute(&config)?;
