@@ -1663,7 +1663,7 @@ fn prepare_pooled(
     config: &Config,
     composites: &[(String, Vec<String>)],
     plan: &Plan,
-) -> Result<(Vec<composite::Pooled>, Vec<(String, String)>)> {
+) -> Result<(Vec<composite::Pooled>, composite::Refused)> {
     if composites.is_empty() {
         return Ok((Vec::new(), Vec::new()));
     }

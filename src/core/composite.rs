@@ -854,6 +854,9 @@ pub fn spread(
     (out, cells)
 }
 
+/// Composites that cannot be split: (code, why).
+pub type Refused = Vec<(String, String)>;
+
 /// Prepares the pooled sources of a table for [`spread`]: each composite
 /// (code, members) gets its members' source indices (`source_index`) and
 /// shares by `size`. A composite with a member that is no source, or with
@@ -864,7 +867,7 @@ pub fn prepare_pooled(
     source_index: impl Fn(&str) -> Option<usize>,
     size: impl Fn(&str) -> Option<f64>,
     basis: SplitBasis,
-) -> (Vec<Pooled>, Vec<(String, String)>) {
+) -> (Vec<Pooled>, Refused) {
     let mut ok = Vec::new();
     let mut refused = Vec::new();
     for (code, members) in composites {
