@@ -1144,7 +1144,14 @@ pub fn execute(config: &Config) -> Result<Report> {
             } else {
                 None
             };
-            let user = config.crosswalk.as_ref().map(|(_, cw)| sorted(cw.clone()));
+            // Carrying to a county vintage: the user's table is of county
+            // codes, however few (a short table of 4-digit codes is not
+            // recognized as counties by its look alone).
+            let user = config.crosswalk.as_ref().map(|(_, cw)| {
+                let mut cw = cw.clone();
+                cw.normalize_codes_as(CodeForm::County, CodeForm::County);
+                sorted(cw)
+            });
             let c = carry_codes(
                 &by_code,
                 year,
