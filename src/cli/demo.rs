@@ -605,7 +605,6 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         &review,
         &harmonized,
         &apply_report,
-        &by_area,
     )?;
     let summary_path = dir.join("SUMMARY.txt");
     write_text(&summary_path, &summary)?;
@@ -663,8 +662,8 @@ fn summarize(
     review: &Path,
     harmonized: &Path,
     apply_report: &Path,
-    by_area: &Path,
 ) -> Result<String> {
+    let by_area = &dir.join("service-areas.csv");
     let rows = read_table(reports, ReadOptions::default())?.len();
     let first = read_table(first_review, ReadOptions::default())?.len();
     let status = count_by(matched, "match_status")?;
