@@ -499,3 +499,17 @@ fn features_sharing_a_key_are_refused_on_request() {
         ));
     assert_eq!(std::fs::read_to_string(&out).unwrap(), "old");
 }
+
+#[test]
+fn a_layer_without_features_is_refused_not_read_as_an_empty_crosswalk() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("empty.geojson");
+    std::fs::write(&p, r#"{"type":"FeatureCollection","features":[]}"#).unwrap();
+    let out = dir.path().join("xw.csv");
+    overlay_onto_itself(&p, &out, "ID")
+        .code(1)
+        .stderr(predicate::str::contains(
+            "empty.geojson: the layer holds no features",
+        ));
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "old");
+}

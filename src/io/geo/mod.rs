@@ -284,23 +284,15 @@ pub fn check_coord(location: Location, detail: &str, c: Coord<f64>) -> Result<()
 /// dependency's) becomes an error naming the file instead of ending the
 /// program.
 pub fn guarded<T>(path: &Path, read: impl FnOnce() -> Result<T>) -> Result<T> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(read)) {
-        Ok(r) => r,
-        Err(payload) => {
-            let what = payload
-                .downcast_ref::<&str>()
-                .map(|s| s.to_string())
-                .or_else(|| payload.downcast_ref::<String>().cloned())
-                .unwrap_or_default();
-            Err(Error::input(
-                Location::file(path),
-                format!(
-                    "the layer could not be read ({what}); the file is damaged or in a form \
-                     regionkey does not read"
-                ),
-            ))
-        }
-    }
+    crate::io::guard::catch(read).unwrap_or_else(|what| {
+        Err(Error::input(
+            Location::file(path),
+            format!(
+                "the layer could not be read ({what}); the file is damaged or in a form \
+                 regionkey does not read"
+            ),
+        ))
+    })
 }
 
 /// What to do with several features that carry the same key.
@@ -409,6 +401,12 @@ pub fn resolve_keys(
     numbers: &[u64],
     values: impl Fn(usize, &str) -> Option<String>,
 ) -> Result<(Vec<String>, String)> {
+    if ids.is_empty() {
+        return Err(Error::input(
+            Location::file(path),
+            "the layer holds no features; a boundary layer needs at least one unit",
+        ));
+    }
     let mut keys = Vec::with_capacity(ids.len());
     match &req.key {
         None => {
