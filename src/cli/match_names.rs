@@ -363,12 +363,16 @@ fn folded(header: &str) -> String {
         .to_ascii_lowercase()
 }
 
-/// Distinct non-empty values of a column, in input order, with the row of
-/// their first appearance.
+/// Rows looked at by the column checks: enough to tell a column of years
+/// from a column of states, cheap on a table of millions.
+const CHECKED_ROWS: usize = 20_000;
+
+/// Distinct non-empty values of a column among the first [`CHECKED_ROWS`]
+/// rows, in input order, with the row of their first appearance.
 fn distinct_values(table: &Table, col: usize) -> Vec<(&str, usize)> {
     let mut seen: std::collections::HashSet<&str> = std::collections::HashSet::new();
     let mut out = Vec::new();
-    for (row, r) in table.records.iter().enumerate() {
+    for (row, r) in table.records.iter().enumerate().take(CHECKED_ROWS) {
         let v = r[col].trim();
         if !v.is_empty() && seen.insert(v) {
             out.push((v, row));
@@ -410,11 +414,20 @@ fn check_columns(
                 .find(|(v, _)| matcher.parent_of(v).is_none())
                 .copied()
                 .unwrap_or(values[0]);
+            let reference = config.source.get();
+            let hint = match (&config.source, reference.parents.first()) {
+                (Source::File(_), Some(p)) => format!(
+                    " (its parents are written like {:?}{}; a parent_name column in the reference lets the state column use names)",
+                    p.code,
+                    if p.name != p.code { format!(" or {:?}", p.name) } else { String::new() }
+                ),
+                _ => String::new(),
+            };
             return Err(Error::input(
                 table.location(row, col),
                 format!(
-                    "--state-column names a column whose values are not states of {} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
-                    config.source.get().label,
+                    "--state-column names a column whose values are not states of {}{hint} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
+                    reference.label,
                     values.len()
                 ),
             ));
