@@ -470,16 +470,16 @@ impl Config {
         }
         let crosswalk = match &args.crosswalk {
             Some(p) => {
-                let cw = crosswalk_file::read_csv(p)?;
-                match check("crosswalk", &cw) {
+                let file = crosswalk_file::read_file(p)?;
+                match check("crosswalk", &file.crosswalk) {
                     Ok(()) => {}
                     Err(e @ ChainError::Unbalanced { .. }) => warn(format!(
-                        "{}: {e}; totals will not be conserved",
-                        p.display()
+                        "{}; totals will not be conserved",
+                        file.locate(p, &e, None)
                     )),
-                    Err(e) => return Err(Error::Usage(format!("{}: {e}", p.display()))),
+                    Err(e) => return Err(file.locate(p, &e, None)),
                 }
-                Some((p.clone(), cw))
+                Some((p.clone(), file.crosswalk))
             }
             None => None,
         };
