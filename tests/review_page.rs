@@ -432,6 +432,15 @@ fn a_person_settles_the_review_in_the_browser_and_match_takes_the_file_back() {
     s.script("window.scrollTo(0, 0)");
     s.screenshot(1280, 800, &shots.join("review-page-1280x800.png"));
     s.screenshot(390, 844, &shots.join("review-page-390x844.png"));
+    // Readable on a narrow screen: no card, button, field or map reaches
+    // past the right edge of the window.
+    let outside = s.script(
+        "return Array.from(document.querySelectorAll('header *, article.card, article.card button, \
+         article.card input, figure.map svg')).filter(function (e) { \
+         return e.getClientRects().length && e.getBoundingClientRect().right > window.innerWidth + 1; \
+         }).map(function (e) { return e.tagName + '.' + e.className; })",
+    );
+    assert_eq!(outside, json!([]), "past the edge of a 390 px window");
     s.screenshot(1280, 800, &dir.path().join("again.png"));
 
     // Save through the page's button: the browser downloads decisions.csv.

@@ -8,6 +8,7 @@
 #   RUNS    timed runs of each program per level (default 3; min and max shown)
 #   LEVELS  spacings in degrees (default "0.01 0.005 0.002")
 #   PYTHON  a Python with shapely, pyproj and numpy (default python3)
+#   REGIONKEY  a regionkey binary to time instead of building the release one
 #
 # For each level: densify.py makes both layers (every arc cut to at most the
 # spacing, a deterministic wiggle, shared edges kept shared); regionkey and
@@ -31,12 +32,15 @@ RUNS=${1:-3}
 LEVELS=${2:-"0.01 0.005 0.002"}
 PY=${PYTHON:-python3}
 HERE=scripts/bench-overlay
-cargo build --release --bin regionkey >&2
-TARGET=${CARGO_TARGET_DIR:-target}
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-# A private copy: a shared target folder may be rebuilt under us.
-cp "$TARGET/release/regionkey" "$WORK/regionkey"
+if [ -n "${REGIONKEY:-}" ]; then
+    cp "$REGIONKEY" "$WORK/regionkey"
+else
+    cargo build --release --bin regionkey >&2
+    # A private copy: a shared target folder may be rebuilt under us.
+    cp "${CARGO_TARGET_DIR:-target}/release/regionkey" "$WORK/regionkey"
+fi
 RK="$WORK/regionkey"
 
 # time_of OUT_PREFIX CMD...: runs CMD under GNU time; prints "seconds MB".
