@@ -100,6 +100,20 @@ pub struct Args {
     /// Write every reported row (kind, code, period, rows, first_line, detail) here as CSV.
     #[arg(long)]
     pub report: Option<PathBuf>,
+    /// Instead of allocating, write to --output the SQL query (duckdb,
+    /// spark or ansi) that does the same allocation, coverage and ratios in
+    /// a database engine, on the data and the crosswalk as tables. DATA is
+    /// read only for its column names.
+    #[arg(long, value_name = "DIALECT", requires = "crosswalk", conflicts_with_all = ["to_vintage", "report"])]
+    pub emit_sql: Option<String>,
+    /// With --emit-sql: the names of the data and crosswalk tables in the engine.
+    #[arg(
+        long,
+        value_name = "DATA,CROSSWALK",
+        default_value = "data,crosswalk",
+        requires = "emit_sql"
+    )]
+    pub sql_tables: String,
 }
 
 /// A problem or a fact worth a line in the report.
@@ -617,9 +631,77 @@ fn carry_codes(
     out
 }
 
+/// Writes the query of `--emit-sql`.
+fn emit_sql(args: &Args, config: &Config, dialect: &str, global: Global) -> Result<()> {
+    use crate::core::sql;
+    let dialect: sql::Dialect = dialect
+        .parse()
+        .map_err(|e: String| Error::Usage(format!("--emit-sql: {e}")))?;
+    let (data_table, crosswalk_table) = args
+        .sql_tables
+        .split_once(',')
+        .map(|(d, c)| (d.trim().to_string(), c.trim().to_string()))
+        .filter(|(d, c)| !d.is_empty() && !c.is_empty())
+        .ok_or_else(|| {
+            Error::Usage(format!(
+                "--sql-tables {:?}: give two table names separated by a comma",
+                args.sql_tables
+            ))
+        })?;
+    let codes = match config.crosswalk.as_ref().map(|(_, cw)| code_kind(cw)) {
+        Some(CodeKind::County) => sql::CodeForm::County,
+        Some(CodeKind::State) => sql::CodeForm::State,
+        _ => sql::CodeForm::Text,
+    };
+    let query = sql::Query {
+        dialect,
+        data_table,
+        crosswalk_table,
+        crosswalk_has_origin: false,
+        code_column: config.data.code_column.clone(),
+        state_column: config.data.state_column.clone(),
+        period_column: config.data.period_column.clone(),
+        codes,
+        variables: config
+            .requests
+            .iter()
+            .map(|r| match r {
+                Request::Count(c) => sql::Variable::Count(c.clone()),
+                Request::Ratio {
+                    name,
+                    numerator,
+                    denominator,
+                } => sql::Variable::Ratio {
+                    name: name.clone(),
+                    numerator: numerator.clone(),
+                    denominator: denominator.clone(),
+                },
+                Request::Mean { column, weight } => sql::Variable::Mean {
+                    column: column.clone(),
+                    weight: weight.clone(),
+                },
+            })
+            .collect(),
+        min_coverage: args.min_coverage,
+    };
+    let text = query.render();
+    write_to(&config.output, |w| w.write_all(text.as_bytes()))?;
+    say(
+        global,
+        format!(
+            "regionkey apply: wrote the {} query; nothing was allocated here",
+            dialect.as_str()
+        ),
+    );
+    Ok(())
+}
+
 /// Runs the command.
 pub fn run(args: Args, global: Global) -> Result<()> {
     let config = check_args(&args)?;
+    if let Some(dialect) = &args.emit_sql {
+        return emit_sql(&args, &config, dialect, global);
+    }
     let table = data::read(&config.data)?;
     let indexed = table.index();
     let mut findings: Vec<Finding> = Vec::new();

@@ -12,3 +12,4 @@ pub mod normalize;
 pub mod overlay;
 pub mod projection;
 pub mod reference;
+pub mod sql;
