@@ -33,7 +33,6 @@ from typing import Any, Dict, Iterable, List, Optional, Sequence, Tuple, Union
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pacsv
-import pyarrow.parquet as pq
 
 from . import _regionkey
 from ._regionkey import CAUTION, RegionkeyError
@@ -41,6 +40,7 @@ from ._regionkey import CAUTION, RegionkeyError
 __all__ = [
     "match",
     "apply",
+    "apply_sql",
     "overlay",
     "history",
     "counties",
@@ -241,6 +241,19 @@ def match(
 # --- apply and overlay (files under the hood) ------------------------------
 
 
+def _run(args: List[str], names: Dict[str, str]) -> None:
+    """Runs a command on temporary files; messages name the DataFrames, not
+    the temporary files (line N of a DataFrame is row N - 2, the header
+    being line 1)."""
+    try:
+        _regionkey.run_command(args)
+    except RegionkeyError as e:
+        message = str(e)
+        for path, name in names.items():
+            message = message.replace(path, name)
+        raise RegionkeyError(message) from None
+
+
 def _read_result(path: str, text_columns: Iterable[str]) -> pa.Table:
     types = {c: pa.string() for c in text_columns}
     return pacsv.read_csv(
@@ -298,8 +311,8 @@ def apply(
     table = _to_arrow(df)
     workdir = tempfile.mkdtemp(prefix="regionkey-")
     try:
-        data_path = os.path.join(workdir, "data.parquet")
-        pq.write_table(table, data_path)
+        data_path = os.path.join(workdir, "data.csv")
+        pacsv.write_csv(table, data_path)
         args: List[str] = [
             "apply",
             data_path,
@@ -339,7 +352,7 @@ def apply(
         args += ["--output", out_path]
         if report:
             args += ["--report", report_path]
-        _regionkey.run_command(args)
+        _run(args, {data_path: "the DataFrame", os.path.join(workdir, "crosswalk.csv"): "the crosswalk DataFrame"})
         result = _read_result(out_path, ["code", "code_name", "period"])
         result = result.replace_schema_metadata({"caution": CAUTION})
         out = _from_arrow(result, kind)
@@ -349,6 +362,71 @@ def apply(
         return out
     finally:
         shutil.rmtree(workdir, ignore_errors=True)
+
+
+def _variables(
+    sum: Sequence[str], ratio: Union[Dict[str, str], Sequence[str]], mean: Sequence[str]
+) -> List[Tuple[str, str, str, Optional[str]]]:
+    out: List[Tuple[str, str, str, Optional[str]]] = [("sum", c, c, None) for c in sum]
+    ratios = [f"{k}={v}" for k, v in ratio.items()] if isinstance(ratio, dict) else list(ratio)
+    for r in ratios:
+        name, _, rest = r.partition("=")
+        num, _, den = rest.partition("/")
+        if not (name.strip() and num.strip() and den.strip()):
+            raise RegionkeyError(
+                f"--ratio {r!r}: expected NAME=NUMERATOR/DENOMINATOR, e.g. rate=unemployed/labor_force"
+            )
+        out.append(("ratio", name.strip(), num.strip(), den.strip()))
+    for m in mean:
+        column, _, weight = m.partition(":")
+        out.append(("mean", column.strip(), column.strip(), weight.strip() or None))
+    return out
+
+
+def apply_sql(
+    dialect: str,
+    *,
+    data_table: str = "data",
+    crosswalk_table: str = "crosswalk",
+    code_column: str = "code",
+    state_column: Optional[str] = None,
+    period_column: Optional[str] = None,
+    codes: str = "county",
+    sum: Sequence[str] = (),
+    ratio: Union[Dict[str, str], Sequence[str]] = (),
+    mean: Sequence[str] = (),
+    min_coverage: float = 0.0,
+    crosswalk_has_origin: bool = False,
+) -> str:
+    """The SQL query that does :func:`apply`'s allocation, ratios, means and
+    coverage in an engine (``"duckdb"``, ``"spark"`` or ``"ansi"``), on the
+    data and the crosswalk as tables: what ``regionkey apply --emit-sql``
+    writes.
+
+    The crosswalk table has ``from_code, to_code, weight, target_share``;
+    ``codes`` says how the data's codes are read (``"county"``: five-digit
+    FIPS, lost leading zeros restored; ``"state"``; ``"text"``: as written).
+    Figures come out unrounded; allocated figures are estimates.
+
+    >>> import duckdb, regionkey
+    >>> con = duckdb.connect()
+    >>> _ = con.execute("CREATE TABLE data AS SELECT * FROM (VALUES ('1001', 10.0), ('1003', NULL)) t(fips, pop)")
+    >>> _ = con.execute("CREATE TABLE crosswalk AS SELECT * FROM (VALUES ('01001', 'T', 1.0, 0.4), ('01003', 'T', 1.0, 0.6)) t(from_code, to_code, weight, target_share)")
+    >>> con.execute(regionkey.apply_sql("duckdb", code_column="fips", sum=["pop"])).fetchall()
+    [('T', 10.0, 0.4)]
+    """
+    return _regionkey.sql_query(
+        dialect,
+        data_table,
+        crosswalk_table,
+        crosswalk_has_origin,
+        code_column,
+        state_column,
+        period_column,
+        codes,
+        _variables(sum, ratio, mean),
+        float(min_coverage),
+    )
 
 
 def overlay(

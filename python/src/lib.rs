@@ -677,6 +677,69 @@ fn run_command(args: &Bound<'_, PyTuple>) -> PyResult<()> {
     .map_err(py_err)
 }
 
+/// `sql_query(dialect, data_table, crosswalk_table, has_origin, code_column,
+/// state_column, period_column, codes, variables, min_coverage)`: the query
+/// of `apply --emit-sql` (see `regionkey::core::sql`). `codes` is "county",
+/// "state" or "text"; `variables` is a list of (kind, name, first column,
+/// second column or None) with kind "sum", "ratio" or "mean".
+fn sql_query(args: &Bound<'_, PyTuple>) -> PyResult<String> {
+    use regionkey::core::sql::{CodeForm as Codes, Dialect, Query, Variable};
+    let dialect: String = arg(args, 0)?;
+    let dialect: Dialect = dialect
+        .parse()
+        .map_err(|e: String| RegionkeyError::new_err(format!("--emit-sql: {e}")))?;
+    let codes: String = arg(args, 7)?;
+    let codes = match codes.as_str() {
+        "county" => Codes::County,
+        "state" => Codes::State,
+        "text" => Codes::Text,
+        other => {
+            return Err(RegionkeyError::new_err(format!(
+                "codes {other:?}: choose \"county\", \"state\" or \"text\""
+            )))
+        }
+    };
+    let raw: Vec<(String, String, String, Option<String>)> = arg(args, 8)?;
+    let mut variables = Vec::new();
+    for (kind, name, first, second) in raw {
+        variables.push(match (kind.as_str(), second) {
+            ("sum", _) => Variable::Count(first),
+            ("ratio", Some(denominator)) => Variable::Ratio {
+                name,
+                numerator: first,
+                denominator,
+            },
+            ("mean", weight) => Variable::Mean {
+                column: first,
+                weight,
+            },
+            _ => {
+                return Err(RegionkeyError::new_err(format!(
+                    "variable {name:?}: expected a sum, a ratio NAME=NUM/DEN or a mean"
+                )))
+            }
+        });
+    }
+    if variables.is_empty() {
+        return Err(RegionkeyError::new_err(
+            "nothing to carry: name at least one variable with --sum COL, --ratio NAME=NUM/DEN or --mean COL[:WEIGHT]",
+        ));
+    }
+    let query = Query {
+        dialect,
+        data_table: arg(args, 1)?,
+        crosswalk_table: arg(args, 2)?,
+        crosswalk_has_origin: arg(args, 3)?,
+        code_column: arg(args, 4)?,
+        state_column: arg(args, 5)?,
+        period_column: arg(args, 6)?,
+        codes,
+        variables,
+        min_coverage: arg(args, 9)?,
+    };
+    Ok(query.render())
+}
+
 /// Adds a function taking positional arguments to the module.
 fn add<F, R>(m: &Bound<'_, PyModule>, name: &'static std::ffi::CStr, f: F) -> PyResult<()>
 where
@@ -720,6 +783,7 @@ fn module(py: Python<'_>) -> PyResult<Bound<'_, PyModule>> {
         reference_table(a).map(|d| d.unbind())
     })?;
     add(&m, c"run_command", run_command)?;
+    add(&m, c"sql_query", sql_query)?;
     m.add("CAUTION", regionkey::cli::apply::CAUTION)?;
     Ok(m)
 }
