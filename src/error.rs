@@ -15,6 +15,9 @@ pub struct Location {
     pub line: Option<u64>,
     /// Column or field name, if known.
     pub column: Option<String>,
+    /// What `line` counts when it is not a text line: `"feature"` (layers)
+    /// or `"record"` (binary files such as a Shapefile's); `None` for lines.
+    pub unit: Option<&'static str>,
 }
 
 impl Location {
@@ -24,7 +27,22 @@ impl Location {
             path: path.into(),
             line: None,
             column: None,
+            unit: None,
         }
+    }
+
+    /// Adds a feature number (1-based, in file order) of a layer.
+    pub fn at_feature(mut self, feature: u64) -> Self {
+        self.line = Some(feature);
+        self.unit = Some("feature");
+        self
+    }
+
+    /// Adds a record number (1-based) of a binary file.
+    pub fn at_record(mut self, record: u64) -> Self {
+        self.line = Some(record);
+        self.unit = Some("record");
+        self
     }
 
     /// Adds a line (or record) number.
@@ -44,7 +62,7 @@ impl std::fmt::Display for Location {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         write!(f, "{}", self.path.display())?;
         if let Some(line) = self.line {
-            write!(f, ": line {line}")?;
+            write!(f, ": {} {line}", self.unit.unwrap_or("line"))?;
         }
         if let Some(column) = &self.column {
             write!(f, ": column {column:?}")?;

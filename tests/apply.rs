@@ -43,7 +43,12 @@ fn find<'a>(
     period: Option<&str>,
 ) -> &'a BTreeMap<String, String> {
     rows.iter()
-        .find(|r| r["code"] == code && period.is_none_or(|p| r["period"] == p))
+        // The code and period columns keep the data's names ("code" or
+        // "id", "year").
+        .find(|r| {
+            r.get("code").or_else(|| r.get("id")).map(String::as_str) == Some(code)
+                && period.is_none_or(|p| r["year"] == p)
+        })
         .unwrap_or_else(|| panic!("no row for {code} {period:?}"))
 }
 
@@ -347,7 +352,7 @@ fn the_same_inputs_give_the_same_bytes() {
         outputs.push(std::fs::read(&out).unwrap());
     }
     assert_eq!(outputs[0], outputs[1]);
-    assert!(outputs[0].starts_with(b"code,period,n,n_coverage\nX,2000,"));
+    assert!(outputs[0].starts_with(b"code,year,n,n_coverage\nX,2000,"));
 }
 
 /// Runs apply on the unemployment file carried to the 2023 counties and

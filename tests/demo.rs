@@ -86,7 +86,7 @@ fn the_demo_keeps_every_row_and_carries_renamed_and_split_units() {
     };
     let estimate = |code: &str, year: &str, col: &str| -> f64 {
         out.iter()
-            .find(|r| r["code"] == code && r["period"] == year)
+            .find(|r| r["code"] == code && r["year"] == year)
             .unwrap()[col]
             .parse()
             .unwrap()

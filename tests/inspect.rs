@@ -44,3 +44,29 @@ fn a_missing_crosswalk_file_is_named() {
         .code(1)
         .stderr(predicate::str::contains("no-such-crosswalk.csv"));
 }
+
+#[test]
+fn codes_that_lost_their_leading_zero_are_reported_with_their_line() {
+    // An overlay of layers with integer keys writes 02201 as 2201 (issue:
+    // inspect passed such a file although its help promises to catch lost
+    // zeros). Codes: Census Bureau FIPS (02201 Prince of Wales-Outer
+    // Ketchikan, 02198 Prince of Wales-Hyder, 02130 Ketchikan Gateway).
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("integer-keys.csv");
+    std::fs::write(
+        &p,
+        "from_code,to_code,weight,target_share,basis\n\
+         2201,2198,0.6,1.0,area\n\
+         2201,2130,0.4,0.2,area\n\
+         36061,36061,1.0,1.0,area\n\
+         48201,48201,1.0,1.0,area\n",
+    )
+    .unwrap();
+    rk().args(["inspect", p.to_str().unwrap()])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("line 2: from_code \"2201\""))
+        .stderr(predicate::str::contains("read as 02201"))
+        .stderr(predicate::str::contains("lost leading zero restored"))
+        .stderr(predicate::str::contains("line 3: to_code \"2130\""));
+}

@@ -542,8 +542,8 @@ fn a_feature_that_is_not_a_polygon_is_named_by_number() {
         .arg(dir.path().join("x.csv"))
         .assert()
         .code(1)
-        .stderr(predicate::str::contains("line 2"))
-        .stderr(predicate::str::contains("feature 2 is a \"Point\""));
+        .stderr(predicate::str::contains("pts.geojson: feature 2"))
+        .stderr(predicate::str::contains("is a \"Point\""));
 }
 
 #[test]

@@ -52,7 +52,7 @@ __all__ = [
 
 #: The columns :func:`match` adds, in order (prefixed with ``rk_`` when the
 #: input already has a column of one of these names).
-ADDED_COLUMNS: Tuple[str, ...] = (
+ADDED_COLUMNS: Tuple[str, ...] = (  # core::match_table::ADDED_COLUMNS
     "code",
     "code_name",
     "match_status",
@@ -219,7 +219,6 @@ def match(
             os.fspath(reference) if reference is not None else None,
             _decisions_path(decisions, workdir),
             "the DataFrame",
-            state_column,
             vintage_column,
         )
     finally:
@@ -254,14 +253,22 @@ def _run(args: List[str], names: Dict[str, str]) -> None:
         raise RegionkeyError(message) from None
 
 
-def _read_result(path: str, text_columns: Iterable[str]) -> pa.Table:
-    types = {c: pa.string() for c in text_columns}
-    return pacsv.read_csv(
+def _read_result(path: str, text_columns: Iterable[str], figures: bool = True) -> pa.Table:
+    """A table the command wrote: the named columns as text, whole-number
+    columns as floats (a figure of 100 is written "100" but is a float)."""
+    text = list(text_columns)
+    table = pacsv.read_csv(
         path,
         convert_options=pacsv.ConvertOptions(
-            column_types=types, strings_can_be_null=False, null_values=[""]
+            column_types={c: pa.string() for c in text},
+            strings_can_be_null=False,
+            null_values=[""],
         ),
     )
+    for i, field in enumerate(table.schema):
+        if figures and field.name not in text and (pa.types.is_integer(field.type) or pa.types.is_null(field.type)):
+            table = table.set_column(i, field.name, table.column(i).cast(pa.float64()))
+    return table
 
 
 def apply(
@@ -276,7 +283,7 @@ def apply(
     ratio: Union[Dict[str, str], Sequence[str]] = (),
     mean: Sequence[str] = (),
     min_coverage: float = 0.0,
-    decimals: int = 6,
+    decimals: Optional[int] = None,
     missing: Sequence[str] = ("NA",),
     all_units: bool = False,
     report: bool = False,
@@ -304,7 +311,7 @@ def apply(
     ...                    "weight": [1.0, 1.0], "target_share": [0.25, 0.75],
     ...                    "basis": ["area", "area"]})
     >>> out = regionkey.apply(data, cw, code_column="fips", sum=["pop"])
-    >>> out[["code", "pop", "pop_coverage"]].values.tolist()
+    >>> out[["fips", "pop", "pop_coverage"]].values.tolist()
     [['X', 100.0, 0.25]]
     """
     kind = _kind(df)
@@ -320,9 +327,9 @@ def apply(
             code_column,
             "--min-coverage",
             repr(float(min_coverage)),
-            "--decimals",
-            str(decimals),
         ]
+        if decimals is not None:
+            args += ["--decimals", str(decimals)]
         if crosswalk is not None:
             if isinstance(crosswalk, (str, os.PathLike)):
                 cw_path = os.fspath(crosswalk)
@@ -353,11 +360,12 @@ def apply(
         if report:
             args += ["--report", report_path]
         _run(args, {data_path: "the DataFrame", os.path.join(workdir, "crosswalk.csv"): "the crosswalk DataFrame"})
-        result = _read_result(out_path, ["code", "code_name", "period"])
+        text = [code_column, "code_name", "rk_code_name"] + ([period_column] if period_column else [])
+        result = _read_result(out_path, [c for c in text if c])
         result = result.replace_schema_metadata({"caution": CAUTION})
         out = _from_arrow(result, kind)
         if report:
-            rep = _read_result(report_path, ["kind", "code", "period", "detail"])
+            rep = _read_result(report_path, ["kind", "code", "period", "detail"], figures=False)
             return out, _from_arrow(rep, kind)
         return out
     finally:
@@ -405,7 +413,8 @@ def apply_sql(
 
     The crosswalk table has ``from_code, to_code, weight, target_share``;
     ``codes`` says how the data's codes are read (``"county"``: five-digit
-    FIPS, lost leading zeros restored; ``"state"``; ``"text"``: as written).
+    FIPS, lost leading zeros restored; ``"state"``; ``"digits:11"``: all-digit
+    codes of that width, such as tract GEOIDs; ``"text"``: as written).
     Figures come out unrounded; allocated figures are estimates.
 
     >>> import duckdb, regionkey
@@ -414,6 +423,8 @@ def apply_sql(
     >>> _ = con.execute("CREATE TABLE crosswalk AS SELECT * FROM (VALUES ('01001', 'T', 1.0, 0.4), ('01003', 'T', 1.0, 0.6)) t(from_code, to_code, weight, target_share)")
     >>> con.execute(regionkey.apply_sql("duckdb", code_column="fips", sum=["pop"])).fetchall()
     [('T', 10.0, 0.4)]
+    >>> [d[0] for d in con.description]
+    ['fips', 'pop', 'pop_coverage']
     """
     return _regionkey.sql_query(
         dialect,
@@ -476,7 +487,7 @@ def overlay(
             args += ["--min-share", repr(float(min_share))]
         args += ["--output", out_path]
         _regionkey.run_command(args)
-        table = _read_result(out_path, ["from_code", "to_code", "basis"])
+        table = _read_result(out_path, ["from_code", "to_code", "basis"], figures=False)
         return _from_arrow(table, "polars" if as_polars else "pandas")
     finally:
         shutil.rmtree(workdir, ignore_errors=True)

@@ -12,7 +12,7 @@
 //! compiled. Python calls them with positional arguments only
 //! (`regionkey/__init__.py` does).
 
-use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::collections::{BTreeMap, BTreeSet};
 use std::path::PathBuf;
 
 use pyo3::conversion::FromPyObjectOwned;
@@ -22,16 +22,16 @@ use pyo3::prelude::*;
 use pyo3::types::{PyBytes, PyCFunction, PyDict, PyTuple};
 use rayon::prelude::*;
 
+use regionkey::core::decisions::Decisions;
 use regionkey::core::fips::CountyFips;
 use regionkey::core::history::lineage;
-use regionkey::core::matcher::{CodeForm, Matcher, Method, Resolution, Status};
+use regionkey::core::match_table::{added_fields, match_rows, ReviewItem, Settings};
+use regionkey::core::matcher::{CodeForm, Matcher, Status};
 use regionkey::core::reference::Reference;
 use regionkey::error::{Error, Location};
 use regionkey::io::builtin::{read_reference_file, us_counties, us_states};
 use regionkey::io::output::fixed;
-use regionkey::io::review::{
-    read_decisions, Choice, Decision, ReviewItem, NONE, REVIEW_CANDIDATES,
-};
+use regionkey::io::review::{read_decisions, REVIEW_CANDIDATES};
 
 create_exception!(
     regionkey,
@@ -111,24 +111,17 @@ impl Source {
 /// The latest vintage the built-in references describe (reference/README.md).
 const BUILTIN_LATEST_VINTAGE: u16 = 2023;
 
-fn pair_key(buf: &mut String, name: &str, state: &str) {
-    buf.clear();
-    buf.push_str(name.trim());
-    buf.push('\u{1f}');
-    buf.push_str(state.trim());
-}
-
 /// The year of a row's vintage value, as `regionkey match --vintage-column`
-/// reads it: the first four digits; years after the latest vintage use the
-/// latest.
-fn row_vintage(text: &str, span: (u16, u16), location: Location) -> Result<u16, Error> {
+/// reads it: the first four digits ("2015", "2015.0", "2015-06-30"), no
+/// earlier than the reference's first vintage.
+fn row_year(text: &str, span: (u16, u16), location: Location) -> Result<u16, Error> {
     let text = text.trim();
     let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
     let year = (digits.len() == 4)
         .then(|| digits.parse::<u16>().ok())
         .flatten();
     match year {
-        Some(y) if y >= span.0 => Ok(y.min(span.1)),
+        Some(y) if y >= span.0 => Ok(y),
         Some(y) => Err(Error::input(
             location,
             format!(
@@ -143,140 +136,23 @@ fn row_vintage(text: &str, span: (u16, u16), location: Location) -> Result<u16, 
     }
 }
 
-struct Matchers<'r> {
-    reference: &'r Reference,
-    codes: CodeForm,
-    built: HashMap<u16, Matcher<'r>>,
-}
-
-impl<'r> Matchers<'r> {
-    fn get(&mut self, vintage: u16) -> &Matcher<'r> {
-        let (reference, codes) = (self.reference, self.codes);
-        self.built
-            .entry(vintage)
-            .or_insert_with(|| Matcher::new(reference, vintage, codes))
-    }
-}
-
-fn decide(
-    matchers: &mut Matchers<'_>,
-    vintage: u16,
-    d: &Decision,
-    any_vintage: bool,
-) -> Result<Resolution, Error> {
-    let code = match &d.choice {
-        Choice::NotAUnit => None,
-        Choice::Code(c) => Some(c.as_str()),
-    };
-    if let Some(r) = matchers.get(vintage).decided(code) {
-        return Ok(r);
-    }
-    let c = code.unwrap_or_default();
-    let eras = if any_vintage {
-        matchers.reference.eras(c)
-    } else {
-        Vec::new()
-    };
-    if let Some(era) = eras.first() {
-        let valid = era.valid.from;
-        if let Some(mut r) = matchers.get(valid).decided(Some(c)) {
-            r.note = format!("decided code is a unit of another vintage (from {valid})");
-            return Ok(r);
-        }
-    }
-    Err(Error::input(
-        d.location.clone(),
-        format!(
-            "{c:?} is not a unit in {vintage} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched"
-        ),
-    ))
-}
-
-struct Distinct {
-    name: String,
-    state: String,
-    rows: u64,
-    resolution: Resolution,
-    matcher: Option<Resolution>,
-    decided: bool,
-}
-
-fn added_fields(r: &Resolution) -> [String; 7] {
-    let candidates: Vec<&str> = r.candidates.iter().map(|c| c.code.as_str()).collect();
-    [
-        r.code.clone().unwrap_or_default(),
-        r.name.clone().unwrap_or_default(),
-        r.status.as_str().to_string(),
-        r.method.map_or(String::new(), |m| m.as_str().to_string()),
-        fixed(r.score, 3),
-        r.note.clone(),
-        candidates.join(";"),
-    ]
-}
-
-fn review_items(distinct: &[Distinct]) -> Vec<ReviewItem> {
-    let mut items: Vec<(Status, u64, usize, ReviewItem)> = Vec::new();
-    let mut seen: HashMap<(&str, &str), usize> = HashMap::new();
-    for (order, d) in distinct.iter().enumerate() {
-        let said = d.matcher.as_ref().unwrap_or(&d.resolution);
-        if said.status == Status::Matched && !d.decided {
-            continue;
-        }
-        if let Some(&i) = seen.get(&(d.name.as_str(), d.state.as_str())) {
-            items[i].1 += d.rows;
-            items[i].3.rows += d.rows;
-            continue;
-        }
-        seen.insert((d.name.as_str(), d.state.as_str()), items.len());
-        let chosen = if d.decided {
-            d.resolution
-                .code
-                .clone()
-                .unwrap_or_else(|| NONE.to_string())
-        } else {
-            String::new()
-        };
-        items.push((
-            said.status,
-            d.rows,
-            order,
-            ReviewItem {
-                name: d.name.clone(),
-                state: d.state.clone(),
-                status: said.status.as_str().to_string(),
-                rows: d.rows,
-                reason: said.note.clone(),
-                candidates: said.candidates.clone(),
-                chosen,
-            },
-        ));
-    }
-    items.sort_by(|a, b| a.0.cmp(&b.0).then(b.1.cmp(&a.1)).then(a.2.cmp(&b.2)));
-    items.into_iter().map(|x| x.3).collect()
-}
-
 /// What `match_columns` hands back before it becomes Python objects.
-struct Matched {
+struct Result7 {
     row_of: Vec<u32>,
     fields: Vec<[String; 7]>,
     review: Vec<ReviewItem>,
     summary: BTreeMap<String, u64>,
 }
 
-#[allow(clippy::too_many_arguments)]
-fn match_rows(
-    names: &Column,
-    states: Option<&Column>,
-    years: Option<&Column>,
-    vintage: Option<u16>,
+/// The reference, code form, default vintage and span, checked as
+/// `regionkey match` checks its options.
+fn source_of(
     level: Option<&str>,
-    reference: Option<PathBuf>,
-    decisions: Option<PathBuf>,
-    source_label: &str,
-    state_column: Option<&str>,
-    vintage_column: Option<&str>,
-) -> Result<Matched, Error> {
-    let (source, codes) = match (&reference, level) {
+    reference: Option<&PathBuf>,
+    vintage: Option<u16>,
+    has_states: bool,
+) -> Result<(Source, Settings), Error> {
+    let (source, codes) = match (reference, level) {
         (Some(_), Some(_)) => {
             return Err(Error::Usage(
                 "--level chooses a built-in reference; it cannot be combined with --reference"
@@ -294,7 +170,7 @@ fn match_rows(
             )))
         }
     };
-    if codes == CodeForm::State && states.is_some() {
+    if codes == CodeForm::State && has_states {
         return Err(Error::Usage(
             "--state-column has no meaning with --level state: the names are the states".into(),
         ));
@@ -304,144 +180,96 @@ fn match_rows(
         Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
         Source::File(_) => r.latest_year().unwrap_or(0),
     };
-    let config_vintage = vintage.unwrap_or(latest);
+    let vintage = vintage.unwrap_or(latest);
     let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
-    if codes == CodeForm::County && (config_vintage < first || config_vintage > latest) {
+    if codes == CodeForm::County && (vintage < first || vintage > latest) {
         return Err(Error::Usage(format!(
-            "--vintage {config_vintage}: the built-in county reference covers {first}-{latest}"
+            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
         )));
     }
-    let span = (first, latest);
-    let mut matchers = Matchers {
-        reference: r,
+    let settings = Settings {
         codes,
-        built: HashMap::new(),
+        vintage,
+        span: (first, latest),
     };
-    let mut decided: HashMap<String, Decision> = HashMap::new();
-    if let Some(path) = &decisions {
-        for d in read_decisions(path)? {
-            let mut k = String::new();
-            pair_key(&mut k, &d.name, &d.state);
-            decided.insert(k, d);
-        }
-    }
-    if years.is_none() {
-        for d in decided.values() {
-            decide(&mut matchers, config_vintage, d, false)?;
-        }
-    }
-    if states.is_some() && !matchers.get(config_vintage).has_parents() {
+    Ok((source, settings))
+}
+
+#[allow(clippy::too_many_arguments)]
+fn match_table(
+    names: &Column,
+    states: Option<&Column>,
+    years: Option<&Column>,
+    vintage: Option<u16>,
+    level: Option<&str>,
+    reference: Option<PathBuf>,
+    decisions: Option<PathBuf>,
+    source_label: &str,
+    vintage_column: Option<&str>,
+) -> Result<Result7, Error> {
+    let (source, settings) = source_of(level, reference.as_ref(), vintage, states.is_some())?;
+    let r = source.get();
+    let decisions = match &decisions {
+        Some(path) => read_decisions(path)?,
+        None => Decisions::default(),
+    };
+    if states.is_some() && !Matcher::new(r, settings.vintage, settings.codes).has_parents() {
         return Err(Error::Usage(format!(
             "--state-column: the reference {} has no parent units to read a state against",
             r.label
         )));
     }
-
-    struct Pending<'t> {
-        name: &'t str,
-        state: &'t str,
-        vintage: u16,
-        rows: u64,
-    }
     let n = names.len;
-    let mut index: HashMap<String, u32> = HashMap::new();
-    let mut pending: Vec<Pending> = Vec::new();
-    let mut row_of: Vec<u32> = Vec::with_capacity(n);
-    let mut k = String::new();
-    for i in 0..n {
-        let name = names.get(i);
-        let state = states.map_or("", |c| c.get(i));
-        let vintage = match years {
-            Some(c) => row_vintage(
-                c.get(i),
-                span,
-                Location::file(source_label)
-                    .at_line(i as u64 + 2)
-                    .in_column(vintage_column.unwrap_or("vintage")),
-            )?,
-            None => config_vintage,
-        };
-        pair_key(&mut k, name, state);
-        if years.is_some() {
-            k.push('\u{1f}');
-            k.push_str(&vintage.to_string());
-        }
-        let id = match index.get(k.as_str()) {
-            Some(&id) => id,
-            None => {
-                let id = pending.len() as u32;
-                pending.push(Pending {
-                    name,
-                    state,
-                    vintage,
-                    rows: 0,
-                });
-                index.insert(k.clone(), id);
-                id
-            }
-        };
-        pending[id as usize].rows += 1;
-        row_of.push(id);
-    }
-    let vintages: BTreeSet<u16> = pending.iter().map(|p| p.vintage).collect();
-    for v in vintages {
-        matchers.get(v);
-    }
-    let ready = &matchers.built;
-    let found: Vec<Resolution> = pending
+    let years: Option<Vec<u16>> = match years {
+        None => None,
+        Some(c) => Some(
+            (0..n)
+                .map(|i| {
+                    row_year(
+                        c.get(i),
+                        settings.span,
+                        Location::file(source_label)
+                            .at_line(i as u64 + 2)
+                            .in_column(vintage_column.unwrap_or("vintage")),
+                    )
+                })
+                .collect::<Result<_, Error>>()?,
+        ),
+    };
+    let name_texts: Vec<&str> = (0..n).map(|i| names.get(i)).collect();
+    let state_texts: Option<Vec<&str>> = states.map(|c| (0..n).map(|i| c.get(i)).collect());
+    let matched = match_rows(
+        r,
+        settings,
+        &name_texts,
+        state_texts.as_deref(),
+        years.as_deref(),
+        &decisions,
+        &|_| {},
+    )?;
+    let fields: Vec<[String; 7]> = matched
+        .keys
         .par_iter()
-        .map(|p| ready[&p.vintage].resolve(p.name, states.map(|_| p.state)))
+        .map(|k| added_fields(&k.resolution))
         .collect();
-    let mut distinct: Vec<Distinct> = Vec::with_capacity(pending.len());
-    for (p, found) in pending.iter().zip(found) {
-        pair_key(&mut k, p.name, p.state);
-        let (resolution, said, was_decided) = match decided.get(k.as_str()) {
-            Some(d) => (
-                decide(&mut matchers, p.vintage, d, years.is_some())?,
-                Some(found),
-                true,
-            ),
-            None => (found, None, false),
-        };
-        distinct.push(Distinct {
-            name: p.name.trim().to_string(),
-            state: p.state.trim().to_string(),
-            rows: p.rows,
-            resolution,
-            matcher: said,
-            decided: was_decided,
-        });
-    }
-    let fields: Vec<[String; 7]> = distinct
-        .par_iter()
-        .map(|d| added_fields(&d.resolution))
-        .collect();
-    let review = review_items(&distinct);
+    let tally = matched.tally();
     let mut summary: BTreeMap<String, u64> = BTreeMap::new();
-    summary.insert("rows".into(), n as u64);
-    let names_seen: BTreeSet<(&str, &str)> = distinct
-        .iter()
-        .map(|d| (d.name.as_str(), d.state.as_str()))
-        .collect();
-    summary.insert("distinct_names".into(), names_seen.len() as u64);
-    for d in &distinct {
-        *summary
-            .entry(d.resolution.status.as_str().to_string())
-            .or_default() += d.rows;
-        if d.resolution.status == Status::Matched {
-            if let Some(m) = d.resolution.method {
-                *summary.entry(format!("method:{}", m.as_str())).or_default() += d.rows;
-            }
-        }
-    }
+    summary.insert("rows".into(), tally.rows);
+    summary.insert("distinct_names".into(), tally.names as u64);
     for s in [Status::Matched, Status::Review, Status::Unmatched] {
-        summary.entry(s.as_str().to_string()).or_default();
+        summary.insert(
+            s.as_str().to_string(),
+            tally.by_status.get(&s).copied().unwrap_or(0),
+        );
     }
-    let _ = (state_column, Method::Decision);
-    Ok(Matched {
-        row_of,
+    for (m, rows) in &tally.by_method {
+        summary.insert(format!("method:{}", m.as_str()), *rows);
+    }
+    summary.insert("decisions_used".into(), tally.decisions_used as u64);
+    Ok(Result7 {
+        row_of: matched.row_key,
         fields,
-        review,
+        review: matched.review,
         summary,
     })
 }
@@ -452,7 +280,7 @@ fn arg<'py, T: FromPyObjectOwned<'py>>(args: &Bound<'py, PyTuple>, i: usize) -> 
 }
 
 /// `match_columns(names, states, years, vintage, level, reference,
-/// decisions, source_label, state_column, vintage_column)`: matches name
+/// decisions, source_label, vintage_column)`: matches name
 /// columns; returns a dict with the row ids (little-endian u32 bytes), the
 /// seven added fields of each distinct name (as columns), the review table
 /// (as columns) and summary counts.
@@ -475,8 +303,7 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
     let reference: Option<PathBuf> = arg(args, 5)?;
     let decisions: Option<PathBuf> = arg(args, 6)?;
     let label: String = arg(args, 7)?;
-    let state_column: Option<String> = arg(args, 8)?;
-    let vintage_column: Option<String> = arg(args, 9)?;
+    let vintage_column: Option<String> = arg(args, 8)?;
     if states.as_ref().is_some_and(|s| s.len != names.len)
         || years.as_ref().is_some_and(|s| s.len != names.len)
     {
@@ -486,7 +313,7 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
     }
     let result = py
         .detach(|| {
-            match_rows(
+            match_table(
                 &names,
                 states.as_ref(),
                 years.as_ref(),
@@ -495,7 +322,6 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
                 reference,
                 decisions,
                 &label,
-                state_column.as_deref(),
                 vintage_column.as_deref(),
             )
         })
@@ -520,6 +346,13 @@ fn review_columns<'py>(py: Python<'py>, items: &[ReviewItem]) -> PyResult<Bound<
     let d = PyDict::new(py);
     d.set_item("name", items.iter().map(|i| &i.name).collect::<Vec<_>>())?;
     d.set_item("state", items.iter().map(|i| &i.state).collect::<Vec<_>>())?;
+    d.set_item(
+        "years",
+        items
+            .iter()
+            .map(|i| i.years.to_string())
+            .collect::<Vec<_>>(),
+    )?;
     d.set_item(
         "status",
         items.iter().map(|i| &i.status).collect::<Vec<_>>(),
@@ -680,7 +513,7 @@ fn run_command(args: &Bound<'_, PyTuple>) -> PyResult<()> {
 /// `sql_query(dialect, data_table, crosswalk_table, has_origin, code_column,
 /// state_column, period_column, codes, variables, min_coverage)`: the query
 /// of `apply --emit-sql` (see `regionkey::core::sql`). `codes` is "county",
-/// "state" or "text"; `variables` is a list of (kind, name, first column,
+/// "state", "digits:WIDTH" or "text"; `variables` is a list of (kind, name, first column,
 /// second column or None) with kind "sum", "ratio" or "mean".
 fn sql_query(args: &Bound<'_, PyTuple>) -> PyResult<String> {
     use regionkey::core::sql::{CodeForm as Codes, Dialect, Query, Variable};
@@ -693,6 +526,11 @@ fn sql_query(args: &Bound<'_, PyTuple>) -> PyResult<String> {
         "county" => Codes::County,
         "state" => Codes::State,
         "text" => Codes::Text,
+        digits if digits.starts_with("digits:") => {
+            Codes::Digits(digits["digits:".len()..].parse().map_err(|_| {
+                RegionkeyError::new_err(format!("codes {digits:?}: expected digits:WIDTH"))
+            })?)
+        }
         other => {
             return Err(RegionkeyError::new_err(format!(
                 "codes {other:?}: choose \"county\", \"state\" or \"text\""
@@ -736,6 +574,7 @@ fn sql_query(args: &Bound<'_, PyTuple>) -> PyResult<String> {
         codes,
         variables,
         min_coverage: arg(args, 9)?,
+        columns: Vec::new(),
     };
     Ok(query.render())
 }

@@ -86,14 +86,14 @@ def test_two_million_rows_in_eight_partitions_give_the_commands_results(spark, t
     result = regionkey.spark.allocate(
         matched, crosswalk, code_column="code", period_column="year",
         sum=["a"], ratio={"ab": "a/b"})
-    got = {(r["code"], r["period"]): r for r in result.collect()}
+    got = {(r["code"], r["year"]): r for r in result.collect()}
 
     with open(out_csv, newline="") as f:
         expected = list(csv.DictReader(f))
     assert len(got) == len(expected)
     figures = 0
     for want in expected:
-        row = got[(want["code"], want["period"])]
+        row = got[(want["code"], want["year"])]
         for column in ("a", "a_coverage", "ab", "ab_coverage"):
             text, value = want[column], row[column]
             if text == "":

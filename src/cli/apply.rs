@@ -7,38 +7,50 @@
 //! weighted mean of an intensive variable: by the WEIGHT column allocated as
 //! a count, or without one by the crosswalk's target share). Order
 //! statistics (medians, percentiles) cannot be carried by any of these and
-//! are refused.
+//! are refused, and so are rates offered as counts.
 //!
 //! Every input row is accounted for: allocated, or reported (unmatched or
-//! unreadable code, missing code or period, duplicate code and period).
+//! unreadable code, missing code or period, duplicate code and period), and
+//! every count balances: what came in is what was allocated, plus the share
+//! that lies outside every target, plus what was left out.
+//!
+//! The library entry is [`execute`]: [`Config::from_args`] checks the
+//! arguments (files, columns, options) before the long work, `execute`
+//! reads, allocates and writes, and returns a [`Report`] that [`run`]
+//! prints.
 
 use std::collections::{BTreeMap, BTreeSet};
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use super::{say, warn, Global};
 use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
-use crate::core::fips::{CountyFips, StateFips};
+use crate::core::fips::{CodeForm, FipsError};
 use crate::core::history::{carry, Carried};
 use crate::core::reference::{ChangeKind, Reference};
-use crate::error::{Error, Result};
+use crate::error::{Error, Location, Result};
 use crate::io::builtin::us_counties;
 use crate::io::crosswalk_file;
-use crate::io::data::{self, csv_field, DataSpec, DataTable, Indexed, RawCode, ResultLayout};
-use crate::io::output::{write_file, write_to, Target};
+use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout};
+use crate::io::output::{
+    sidecar_path, write_csv_record, NumberFormat, Sidecar, SidecarInput, Staged, Target, Written,
+};
 
-/// The caution every output carries.
-pub const CAUTION: &str = "Allocated figures are estimates: they assume values are spread evenly by area or by population within each source unit. For legal or funding uses, official relationship files and local practice prevail.";
+pub use crate::io::output::CAUTION;
 
 /// The county crosswalk shipped with regionkey (2017 -> 2023 counties).
 pub const SHIPPED_CROSSWALK: &str = "crosswalks/us-counties-2017-2023.csv";
 
+/// Texts read as "no value" besides an empty field, whatever `--missing`
+/// adds (common practice in published tables).
+pub const MISSING_MARKERS: [&str; 3] = ["NA", "N/A", "n/a"];
+
 /// Arguments.
-#[derive(Debug, clap::Args)]
+#[derive(Debug, Clone, clap::Args)]
 #[command(
-    after_help = "Output columns: code, code_name (with --to-vintage), period (with --period-column), then for each variable NAME and NAME_coverage (and NAME_weighting for a mean). Coverage is the part of the target made of sources whose value is known (by target share, else by weight); an estimate with no known source is empty with coverage 0. A sidecar OUTPUT.json records inputs, options, counts and the caution that allocated figures are estimates."
+    after_help = "Output columns: the code column (named as in the data), code_name (with --to-vintage), the period column (named as in the data, with --period-column), then for each variable NAME and NAME_coverage (and NAME_weighting for a mean); an added column whose name the data already uses gets the prefix rk_. Coverage is the part of the target made of sources whose value is known (by target share, else by weight); an estimate with no known source is empty with coverage 0. Values are written with up to 15 significant digits (all a 64-bit number holds reliably; whole numbers without decimals) unless --decimals is given. The output format follows the extension: .csv (comma-separated, whatever the input's delimiter), .tsv, .parquet. A sidecar OUTPUT.json records inputs, options, counts, the SHA-256 of the output and the caution that allocated figures are estimates; all outputs of a run appear together when it finishes."
 )]
 pub struct Args {
     /// The data table (CSV, TSV or Parquet).
@@ -73,17 +85,19 @@ pub struct Args {
     /// Leave an estimate empty when its coverage is below this (0..=1).
     #[arg(long, default_value_t = 0.0, value_name = "F")]
     pub min_coverage: f64,
-    /// Decimals written for values.
-    #[arg(long, default_value_t = 6)]
-    pub decimals: usize,
+    /// Write values with this many decimals (rounded) instead of up to 15
+    /// significant digits.
+    #[arg(long, value_name = "N")]
+    pub decimals: Option<usize>,
     /// Field delimiter of the data (detected from the header line if not given); `tab` for a tab.
     #[arg(long = "delimiter", alias = "separator", value_name = "C")]
     pub separator: Option<String>,
-    /// A text meaning "no value" besides an empty field (repeatable).
-    #[arg(long, default_value = "NA")]
+    /// A text meaning "no value" besides an empty field, NA, N/A and n/a (repeatable).
+    #[arg(long)]
     pub missing: Vec<String>,
     /// A column whose name looks like an order statistic (median, p50,
-    /// percentile) but is not one (repeatable).
+    /// percentile) or, for --sum, like a rate (rate, pct, share), but is
+    /// not one (repeatable).
     #[arg(long, value_name = "COL")]
     pub allow_name: Vec<String>,
     /// With --to-vintage: write every unit of the vintage, also those no
@@ -94,7 +108,7 @@ pub struct Args {
     /// and leave them out instead of stopping with an error.
     #[arg(long)]
     pub skip_unweighted: bool,
-    /// Where to write the results (CSV; `-` for standard output, then no sidecar).
+    /// Where to write the results (.csv, .tsv or .parquet; `-` for CSV on standard output, then no sidecar).
     #[arg(long, short)]
     pub output: String,
     /// Write every reported row (kind, code, period, rows, first_line, detail) here as CSV.
@@ -119,7 +133,7 @@ pub struct Args {
 /// A problem or a fact worth a line in the report.
 #[derive(Debug, Clone, PartialEq, Eq, PartialOrd, Ord)]
 pub struct Finding {
-    /// What (`unmatched-code`, `duplicate`, `carried`, ...).
+    /// What (`unmatched-code`, `duplicate`, `carried`, `outside`, ...).
     pub kind: &'static str,
     /// The code concerned.
     pub code: String,
@@ -162,23 +176,62 @@ fn looks_like_order_statistic(name: &str) -> bool {
     })
 }
 
+/// Names that say a column is a rate or a share, which cannot be summed:
+/// rate, pct, percent, per_1000 (per + a number), share, ratio, proportion.
+fn looks_like_rate(name: &str) -> bool {
+    let n = name.to_lowercase();
+    let words: Vec<&str> = n
+        .split(|c: char| !c.is_ascii_alphanumeric())
+        .filter(|w| !w.is_empty())
+        .collect();
+    let compact: String = n.chars().filter(|c| c.is_ascii_alphanumeric()).collect();
+    words.iter().any(|w| {
+        [
+            "rate",
+            "rates",
+            "pct",
+            "percent",
+            "percentage",
+            "share",
+            "ratio",
+            "proportion",
+        ]
+        .contains(w)
+            || (w.starts_with("per") && w.len() > 3 && w[3..].bytes().all(|b| b.is_ascii_digit()))
+    }) || ["rate", "pct", "percent", "ratio", "proportion"]
+        .iter()
+        .any(|k| compact.ends_with(k) && compact.len() > k.len())
+        || compact.contains("per1000")
+        || compact.contains("per100k")
+        || compact.contains("per100000")
+}
+
 /// A checked request for one output variable, by column names.
-#[derive(Debug, Clone)]
-enum Request {
+#[derive(Debug, Clone, PartialEq)]
+pub enum Request {
+    /// A count column, summed.
     Count(String),
+    /// A ratio rebuilt from two count columns.
     Ratio {
+        /// The output name.
         name: String,
+        /// The numerator column.
         numerator: String,
+        /// The denominator column.
         denominator: String,
     },
+    /// A weighted mean of an intensive column.
     Mean {
+        /// The column.
         column: String,
+        /// The weight column, or none for the crosswalk's target share.
         weight: Option<String>,
     },
 }
 
 impl Request {
-    fn name(&self) -> &str {
+    /// The output name.
+    pub fn name(&self) -> &str {
         match self {
             Request::Count(c) => c,
             Request::Ratio { name, .. } => name,
@@ -186,7 +239,8 @@ impl Request {
         }
     }
 
-    fn columns(&self) -> Vec<&str> {
+    /// The input columns it reads.
+    pub fn columns(&self) -> Vec<&str> {
         match self {
             Request::Count(c) => vec![c],
             Request::Ratio {
@@ -243,6 +297,7 @@ fn parse_requests(args: &Args) -> Result<Vec<Request>> {
             "nothing to carry: name at least one variable with --sum COL, --ratio NAME=NUM/DEN or --mean COL[:WEIGHT]".into(),
         ));
     }
+    let allowed = |c: &str| args.allow_name.iter().any(|a| a == c);
     let mut names = BTreeSet::new();
     for r in &out {
         if !names.insert(r.name().to_string()) {
@@ -252,9 +307,16 @@ fn parse_requests(args: &Args) -> Result<Vec<Request>> {
             )));
         }
         for c in std::iter::once(r.name()).chain(r.columns()) {
-            if looks_like_order_statistic(c) && !args.allow_name.iter().any(|a| a == c) {
+            if looks_like_order_statistic(c) && !allowed(c) {
                 return Err(Error::Usage(format!(
                     "{c:?} looks like an order statistic (a median or percentile). A median of a target cannot be computed from the medians of its pieces: it needs the distribution within each unit. Carry the underlying counts instead (e.g. counts per income band, then recompute the median), or if {c:?} is not an order statistic, say so with --allow-name {c}"
+                )));
+            }
+        }
+        if let Request::Count(c) = r {
+            if looks_like_rate(c) && !allowed(c) {
+                return Err(Error::Usage(format!(
+                    "--sum {c}: {c:?} looks like a rate or a share, and rates do not add up (two units at 10 % are not 20 %). Rebuild it from its counts with --ratio {c}=NUMERATOR/DENOMINATOR, or carry it as a weighted mean with --mean {c}:WEIGHT; if {c:?} is a count, say so with --allow-name {c}"
                 )));
             }
         }
@@ -273,162 +335,244 @@ fn parse_separator(text: &Option<String>) -> Result<Option<u8>> {
     }
 }
 
-/// How codes are normalized.
+/// The form of the results file.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum CodeKind {
-    County,
-    State,
-    Text,
+pub enum OutputFormat {
+    /// Comma-separated text.
+    Csv,
+    /// Tab-separated text.
+    Tsv,
+    /// Apache Parquet.
+    Parquet,
 }
 
-/// Everything checked before the long work.
-struct Config {
-    requests: Vec<Request>,
-    data: DataSpec,
-    crosswalk: Option<(PathBuf, Crosswalk)>,
-    to_vintage: Option<u16>,
-    output: Target,
-    report: Option<PathBuf>,
-}
-
-fn check_args(args: &Args) -> Result<Config> {
-    let requests = parse_requests(args)?;
-    if args.crosswalk.is_none() && args.to_vintage.is_none() {
-        return Err(Error::Usage(
-            "say where the data goes: --crosswalk FILE, or --to-vintage YEAR to carry US county codes through the change history (or both)".into(),
-        ));
-    }
-    if !(0.0..=1.0).contains(&args.min_coverage) {
-        return Err(Error::Usage(format!(
-            "--min-coverage {}: give a fraction between 0 and 1",
-            args.min_coverage
-        )));
-    }
-    if args.decimals > 15 {
-        return Err(Error::Usage("--decimals: at most 15".into()));
-    }
-    if !args.data.is_file() {
-        return Err(Error::io(
-            &args.data,
-            "cannot open input",
-            std::io::Error::new(std::io::ErrorKind::NotFound, "no such file"),
-        ));
-    }
-    let mut value_columns: Vec<String> = Vec::new();
-    for r in &requests {
-        for c in r.columns() {
-            if !value_columns.iter().any(|v| v == c) {
-                value_columns.push(c.to_string());
-            }
+impl OutputFormat {
+    /// The format a path asks for by its extension: `.csv` (or none, or
+    /// standard output) is CSV, `.tsv`/`.tab` TSV, `.parquet` Parquet;
+    /// another extension is refused, so a file is never written in a form
+    /// its name does not say.
+    pub fn from_target(target: &Target) -> Result<OutputFormat> {
+        let Target::File(path) = target else {
+            return Ok(OutputFormat::Csv);
+        };
+        let ext = path.extension().map(|e| e.to_string_lossy().to_lowercase());
+        match ext.as_deref() {
+            None | Some("csv") | Some("txt") => Ok(OutputFormat::Csv),
+            Some("tsv") | Some("tab") => Ok(OutputFormat::Tsv),
+            Some("parquet") | Some("pq") => Ok(OutputFormat::Parquet),
+            Some(other) => Err(Error::Usage(format!(
+                "{}: the extension .{other} names no format regionkey writes; use .csv, .tsv or .parquet",
+                path.display()
+            ))),
         }
     }
-    let data = DataSpec {
-        path: args.data.clone(),
-        separator: parse_separator(&args.separator)?,
-        code_column: args.code_column.clone(),
-        state_column: args.state_column.clone(),
-        period_column: args.period_column.clone(),
-        value_columns,
-        missing: args
-            .missing
-            .iter()
-            .filter(|m| !m.is_empty())
-            .cloned()
-            .collect(),
-    };
-    data::check_columns(&data)?;
-    let output = Target::parse(&args.output);
-    output.check_writable()?;
-    if let Target::File(p) = &output {
-        if p.extension()
-            .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
-        {
+}
+
+/// Everything checked before the long work: what [`execute`] runs.
+#[derive(Debug, Clone)]
+pub struct Config {
+    /// The output variables.
+    pub requests: Vec<Request>,
+    /// The data table and its columns.
+    pub data: DataSpec,
+    /// A crosswalk (path, rows) given with `--crosswalk`.
+    pub crosswalk: Option<(PathBuf, Crosswalk)>,
+    /// Carry county codes onto this vintage.
+    pub to_vintage: Option<u16>,
+    /// Write every unit of the vintage.
+    pub all_units: bool,
+    /// Leave divided units without weights out instead of stopping.
+    pub skip_unweighted: bool,
+    /// Estimates below this coverage are left empty.
+    pub min_coverage: f64,
+    /// How values are written.
+    pub numbers: NumberFormat,
+    /// Where the results go.
+    pub output: Target,
+    /// Their format.
+    pub format: OutputFormat,
+    /// Where the report goes, if anywhere.
+    pub report: Option<PathBuf>,
+    /// The options as given, for the sidecar.
+    pub options: serde_json::Value,
+}
+
+impl Config {
+    /// Checks the arguments: options, files, columns, output paths, the
+    /// crosswalk. Fails in milliseconds on a typo.
+    pub fn from_args(args: &Args) -> Result<Config> {
+        let requests = parse_requests(args)?;
+        if args.crosswalk.is_none() && args.to_vintage.is_none() {
+            return Err(Error::Usage(
+                "say where the data goes: --crosswalk FILE, or --to-vintage YEAR to carry US county codes through the change history (or both)".into(),
+            ));
+        }
+        if !(0.0..=1.0).contains(&args.min_coverage) {
             return Err(Error::Usage(format!(
-                "{}: results are written as CSV; give a .csv name (Parquet output is not built yet)",
-                p.display()
+                "--min-coverage {}: give a fraction between 0 and 1",
+                args.min_coverage
             )));
         }
-    }
-    if let Some(r) = &args.report {
-        Target::File(r.clone()).check_writable()?;
-    }
-    let crosswalk = match &args.crosswalk {
-        Some(p) => {
-            let cw = crosswalk_file::read_csv(p)?;
-            match check("crosswalk", &cw) {
-                Ok(()) => {}
-                Err(e @ ChainError::Unbalanced { .. }) => warn(format!(
-                    "{}: {e}; totals will not be conserved",
-                    p.display()
-                )),
-                Err(e) => return Err(Error::Usage(format!("{}: {e}", p.display()))),
+        let numbers = match args.decimals {
+            Some(d) if d > 15 => return Err(Error::Usage("--decimals: at most 15".into())),
+            Some(d) => NumberFormat::Fixed(d),
+            None => NumberFormat::default(),
+        };
+        if !args.data.is_file() {
+            return Err(Error::io(
+                &args.data,
+                "cannot open input",
+                std::io::Error::new(std::io::ErrorKind::NotFound, "no such file"),
+            ));
+        }
+        let mut value_columns: Vec<String> = Vec::new();
+        for r in &requests {
+            for c in r.columns() {
+                if !value_columns.iter().any(|v| v == c) {
+                    value_columns.push(c.to_string());
+                }
             }
-            Some((p.clone(), cw))
         }
-        None => None,
+        let mut missing: Vec<String> = MISSING_MARKERS.iter().map(|m| m.to_string()).collect();
+        for m in &args.missing {
+            if !m.is_empty() && !missing.contains(m) {
+                missing.push(m.clone());
+            }
+        }
+        let data = DataSpec {
+            path: args.data.clone(),
+            separator: parse_separator(&args.separator)?,
+            code_column: args.code_column.clone(),
+            state_column: args.state_column.clone(),
+            period_column: args.period_column.clone(),
+            value_columns,
+            missing,
+        };
+        data::check_columns(&data)?;
+        let output = Target::parse(&args.output);
+        output.check_writable()?;
+        // With --emit-sql the output is the query, whatever its extension.
+        let format = match args.emit_sql {
+            Some(_) => OutputFormat::Csv,
+            None => OutputFormat::from_target(&output)?,
+        };
+        if let Some(r) = &args.report {
+            Target::File(r.clone()).check_writable()?;
+            if Target::File(r.clone()) == output {
+                return Err(Error::Usage(format!(
+                    "{}: given as both the output and the report; name two files",
+                    r.display()
+                )));
+            }
+        }
+        let crosswalk = match &args.crosswalk {
+            Some(p) => {
+                let cw = crosswalk_file::read_csv(p)?;
+                match check("crosswalk", &cw) {
+                    Ok(()) => {}
+                    Err(e @ ChainError::Unbalanced { .. }) => warn(format!(
+                        "{}: {e}; totals will not be conserved",
+                        p.display()
+                    )),
+                    Err(e) => return Err(Error::Usage(format!("{}: {e}", p.display()))),
+                }
+                Some((p.clone(), cw))
+            }
+            None => None,
+        };
+        let has_shares = crosswalk
+            .as_ref()
+            .is_none_or(|(_, cw)| cw.rows.iter().any(|r| r.target_share.is_some()));
+        if !has_shares {
+            if let Some(Request::Mean { column, .. }) = requests
+                .iter()
+                .find(|r| matches!(r, Request::Mean { weight: None, .. }))
+            {
+                return Err(Error::Usage(format!(
+                    "--mean {column}: the crosswalk has no target_share, so the mean cannot be weighted by it; name a weight column (--mean {column}:WEIGHT)"
+                )));
+            }
+        }
+        let options = serde_json::json!({
+            "code_column": args.code_column,
+            "state_column": args.state_column,
+            "period_column": args.period_column,
+            "to_vintage": args.to_vintage,
+            "sum": args.sums,
+            "ratio": args.ratios,
+            "mean": args.means,
+            "min_coverage": args.min_coverage,
+            "decimals": args.decimals,
+            "missing": data.missing,
+            "all_units": args.all_units,
+        });
+        Ok(Config {
+            requests,
+            data,
+            crosswalk,
+            to_vintage: args.to_vintage,
+            all_units: args.all_units,
+            skip_unweighted: args.skip_unweighted,
+            min_coverage: args.min_coverage,
+            numbers,
+            output,
+            format,
+            report: args.report.clone(),
+            options,
+        })
+    }
+}
+
+/// Reads a raw code through the one code parser; `Err` says why it cannot
+/// be read.
+fn normalize(form: CodeForm, raw: &RawCode) -> std::result::Result<String, FipsError> {
+    let read = match &raw.state {
+        Some(state) => form.read_with_state(state, &raw.code),
+        None => form.read(&raw.code),
     };
-    let has_shares = crosswalk
-        .as_ref()
-        .is_none_or(|(_, cw)| cw.rows.iter().any(|r| r.target_share.is_some()));
-    if !has_shares {
-        if let Some(Request::Mean { column, .. }) = requests
-            .iter()
-            .find(|r| matches!(r, Request::Mean { weight: None, .. }))
-        {
-            return Err(Error::Usage(format!(
-                "--mean {column}: the crosswalk has no target_share, so the mean cannot be weighted by it; name a weight column (--mean {column}:WEIGHT)"
-            )));
-        }
-    }
-    Ok(Config {
-        requests,
-        data,
-        crosswalk,
-        to_vintage: args.to_vintage,
-        output,
-        report: args.report.clone(),
-    })
+    read.map(|(c, _)| c.into_string())
 }
 
-/// Normalizes a raw code; `Err` says why it cannot be read.
-fn normalize(kind: CodeKind, raw: &RawCode) -> std::result::Result<String, String> {
-    match (kind, &raw.state) {
-        (CodeKind::County, Some(state)) => {
-            let st: StateFips = state.parse().map_err(|e| format!("state part: {e}"))?;
-            let t = raw.code.trim();
-            let t = t.strip_suffix(".0").unwrap_or(t);
-            let n: u16 = t
-                .parse()
-                .ok()
-                .filter(|n| (1..=999).contains(n))
-                .ok_or_else(|| format!("county part {:?} is not a number 1..999", raw.code))?;
-            CountyFips::new(st, n)
-                .map(|c| c.to_string())
-                .ok_or_else(|| "not a county code".into())
+/// The output header: the data's own names for the code and period
+/// columns, then each variable, its coverage and note; an added column
+/// whose name is already taken (by a data column kept in the output or a
+/// variable) gets the prefix `rk_`, and only that one.
+fn output_header(config: &Config, with_names: bool) -> (Vec<String>, Vec<Option<String>>) {
+    let data = &config.data;
+    // Names the user chose: they stay as they are.
+    let mut own: Vec<String> = vec![data.code_column.clone()];
+    own.extend(data.period_column.clone());
+    own.extend(config.requests.iter().map(|r| r.name().to_string()));
+    let added = |name: String, header: &[String]| {
+        if own.contains(&name) || header.contains(&name) {
+            format!("rk_{name}")
+        } else {
+            name
         }
-        (CodeKind::County, None) => raw
-            .code
-            .parse::<CountyFips>()
-            .map(|c| c.to_string())
-            .map_err(|e| e.to_string()),
-        (CodeKind::State, _) => raw
-            .code
-            .parse::<StateFips>()
-            .map(|c| c.to_string())
-            .map_err(|e| e.to_string()),
-        (CodeKind::Text, _) => Ok(raw.code.trim().to_string()),
+    };
+    let mut header = vec![data.code_column.clone()];
+    if with_names {
+        let n = added("code_name".into(), &header);
+        header.push(n);
     }
-}
-
-fn code_kind(cw: &Crosswalk) -> CodeKind {
-    let all = |f: &dyn Fn(&str) -> bool| cw.rows.iter().all(|r| f(&r.from_code));
-    if all(&|c| c.len() == 5 && c.parse::<CountyFips>().is_ok()) {
-        CodeKind::County
-    } else if all(&|c| c.len() == 2 && c.parse::<StateFips>().is_ok()) {
-        CodeKind::State
-    } else {
-        CodeKind::Text
+    header.extend(data.period_column.clone());
+    let mut notes = Vec::new();
+    for r in &config.requests {
+        header.push(r.name().to_string());
+        let c = added(format!("{}_coverage", r.name()), &header);
+        header.push(c);
+        match r {
+            Request::Mean { column, weight } => {
+                let n = added(format!("{column}_weighting"), &header);
+                header.push(n);
+                notes.push(Some(
+                    weight.clone().unwrap_or_else(|| "target_share".into()),
+                ));
+            }
+            _ => notes.push(None),
+        }
     }
+    (header, notes)
 }
 
 /// The rows a crosswalk has for one source code.
@@ -448,6 +592,8 @@ fn sorted(mut cw: Crosswalk) -> Crosswalk {
 /// The crosswalk that carries each data code onto the counties of `year`.
 struct Carrying {
     crosswalk: Crosswalk,
+    /// Sources of the plan that belong to earlier vintages (data codes
+    /// carried, and the other sources of the weight tables they reach).
     carried: BTreeSet<String>,
     findings: Vec<Finding>,
     /// Divided codes without weights: (code, note).
@@ -483,6 +629,19 @@ fn carry_codes(
         findings: Vec::new(),
         unweighted: Vec::new(),
     };
+    // The targets that each weight table's rows reach (user's, shipped),
+    // with the data codes that reach them.
+    let mut reached_by: [BTreeMap<String, BTreeSet<String>>; 2] = Default::default();
+    let take = |reached: &mut BTreeMap<String, BTreeSet<String>>, rows: &[CrosswalkRow]| {
+        for r in rows {
+            if let Some(t) = &r.to_code {
+                reached
+                    .entry(t.clone())
+                    .or_default()
+                    .insert(r.from_code.clone());
+            }
+        }
+    };
     for (code, &(rows, first_line)) in codes {
         let finding = |kind: &'static str, detail: String| Finding {
             kind,
@@ -503,6 +662,7 @@ fn carry_codes(
                     "from-crosswalk",
                     format!("{} row(s) of the given crosswalk", rows.len()),
                 ));
+                take(&mut reached_by[0], &rows);
                 out.crosswalk.rows.extend(rows);
                 continue;
             }
@@ -529,6 +689,7 @@ fn carry_codes(
                         "carried",
                         format!("carried to {to} ({note}); weights from {shipped_label}"),
                     ));
+                    take(&mut reached_by[1], &rows);
                     out.crosswalk.rows.extend(rows);
                     continue;
                 }
@@ -573,6 +734,7 @@ fn carry_codes(
                             successors.join(", ")
                         ),
                     ));
+                    take(&mut reached_by[1], &rows);
                     out.crosswalk.rows.extend(rows);
                 }
             }
@@ -587,13 +749,27 @@ fn carry_codes(
     // the weight tables with no row in the data. They join the plan as
     // carried sources without values, so the coverage of those targets
     // counts what is missing (a region made mostly of counties absent from
-    // the data is not fully covered).
-    let reached: BTreeSet<String> = out
-        .crosswalk
-        .rows
-        .iter()
-        .filter(|r| r.basis != Basis::History)
-        .filter_map(|r| r.to_code.clone())
+    // the data is not fully covered). A table adds its sources to the
+    // targets its own rows reach, and to those the other table's rows
+    // reach from codes it also has (the same vintage); not to targets
+    // reached only from codes of another vintage: the shipped table's 2017
+    // sources beside a user's table from 2000 codes would count the same
+    // land twice, once as missing.
+    let tables = [user, shipped];
+    let wanted_targets: Vec<BTreeSet<String>> = (0..2)
+        .map(|i| {
+            let Some(table) = tables[i] else {
+                return BTreeSet::new();
+            };
+            let mut t: BTreeSet<String> = reached_by[i].keys().cloned().collect();
+            t.extend(
+                reached_by[1 - i]
+                    .iter()
+                    .filter(|(_, from)| from.iter().any(|c| rows_for(table, c).next().is_some()))
+                    .map(|(to, _)| to.clone()),
+            );
+            t
+        })
         .collect();
     let present: BTreeSet<String> = out
         .crosswalk
@@ -603,10 +779,8 @@ fn carry_codes(
         .collect();
     let mut extra: Vec<CrosswalkRow> = Vec::new();
     let mut taken: BTreeSet<String> = BTreeSet::new();
-    for table in [user, if year == 2023 { shipped } else { None }]
-        .into_iter()
-        .flatten()
-    {
+    for (table, reached) in tables.iter().zip(&wanted_targets) {
+        let Some(table) = table else { continue };
         let wanted: BTreeSet<&str> = table
             .rows
             .iter()
@@ -631,131 +805,240 @@ fn carry_codes(
     out
 }
 
-/// Writes the query of `--emit-sql`.
-fn emit_sql(args: &Args, config: &Config, dialect: &str, global: Global) -> Result<()> {
-    use crate::core::sql;
-    let dialect: sql::Dialect = dialect
-        .parse()
-        .map_err(|e: String| Error::Usage(format!("--emit-sql: {e}")))?;
-    let (data_table, crosswalk_table) = args
-        .sql_tables
-        .split_once(',')
-        .map(|(d, c)| (d.trim().to_string(), c.trim().to_string()))
-        .filter(|(d, c)| !d.is_empty() && !c.is_empty())
-        .ok_or_else(|| {
-            Error::Usage(format!(
-                "--sql-tables {:?}: give two table names separated by a comma",
-                args.sql_tables
-            ))
-        })?;
-    let codes = match config.crosswalk.as_ref().map(|(_, cw)| code_kind(cw)) {
-        Some(CodeKind::County) => sql::CodeForm::County,
-        Some(CodeKind::State) => sql::CodeForm::State,
-        _ => sql::CodeForm::Text,
+/// How one count variable balances: what came in is what was allocated,
+/// plus what lies outside every target, plus what was left out.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Balance {
+    /// The variable (a `--sum` column).
+    pub variable: String,
+    /// The sum of its known values over every row of the data.
+    pub input: f64,
+    /// The sum of its written estimates.
+    pub allocated: f64,
+    /// The part of the sources' values that the crosswalk puts outside
+    /// every target (rows with an empty `to_code`).
+    pub outside: f64,
+    /// The values of rows that reached no source (no code or period, a
+    /// code the crosswalk does not know, unreadable, without weights).
+    pub left_out: f64,
+    /// Estimates left empty because their coverage is below `--min-coverage`.
+    pub emptied: f64,
+    /// The part lost or gained because a source's weights do not add up
+    /// to one.
+    pub unbalanced: f64,
+    /// Per period: (period, value of the sources, part outside every target).
+    pub outside_by_period: Vec<(String, f64, f64)>,
+}
+
+impl Balance {
+    /// The difference between what came in and the parts accounted for; a
+    /// rounding error (relative 1e-9 or less) unless something was lost.
+    pub fn discrepancy(&self) -> f64 {
+        self.input
+            - (self.allocated + self.outside + self.left_out + self.emptied + self.unbalanced)
+    }
+}
+
+/// Counts of estimates by coverage, for one variable.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct CoverageCounts {
+    /// Estimates written.
+    pub estimates: u64,
+    /// With coverage 1.
+    pub full: u64,
+    /// With coverage between 0 and 1.
+    pub partial: u64,
+    /// With coverage 0.
+    pub none: u64,
+}
+
+/// What a run did: the figures behind the summary, the report and the
+/// sidecar.
+#[derive(Debug, Clone)]
+pub struct Report {
+    /// Data rows read.
+    pub rows: u64,
+    /// Rows whose values reached a source of the crosswalk.
+    pub rows_allocated: u64,
+    /// Target units written.
+    pub targets: usize,
+    /// Periods written (0 without a period column).
+    pub periods: usize,
+    /// Codes of the data carried from earlier vintages.
+    pub carried: usize,
+    /// (code, period) cells with more than one row.
+    pub duplicates: u64,
+    /// Every reported row, sorted.
+    pub findings: Vec<Finding>,
+    /// Findings per kind: (items, rows).
+    pub counts: BTreeMap<&'static str, (u64, u64)>,
+    /// Per variable, in output order.
+    pub coverage: Vec<(String, CoverageCounts)>,
+    /// Per count variable: how it balances.
+    pub balances: Vec<Balance>,
+    /// What the crosswalk was ("built-in change history to 2023, ...").
+    pub crosswalk_label: String,
+    /// The results written.
+    pub output: Written,
+    /// The sidecar written, if any.
+    pub sidecar: Option<PathBuf>,
+}
+
+fn finding(
+    kind: &'static str,
+    code: String,
+    rows: u64,
+    first_line: u64,
+    detail: String,
+) -> Finding {
+    Finding {
+        kind,
+        code,
+        period: String::new(),
+        rows,
+        first_line: (first_line > 0).then_some(first_line),
+        detail,
+    }
+}
+
+/// Stops when a named column plainly holds something else: no value of
+/// the code column reads as a code of the crosswalk's form (names where
+/// codes belong), or no value of the state column is a state (years where
+/// states belong). A few bad values are data problems and are reported
+/// row by row; a column with (almost) none right is a wrong option.
+fn check_column_contents(
+    config: &Config,
+    indexed: &Indexed,
+    form: CodeForm,
+    read: &[std::result::Result<String, FipsError>],
+) -> Result<()> {
+    let rows: u64 = indexed.code_rows.iter().map(|r| r.0).sum();
+    if rows == 0 {
+        return Ok(());
+    }
+    let path = &config.data.path;
+    let first_bad = |pred: &dyn Fn(usize) -> bool| {
+        (0..indexed.codes.len())
+            .filter(|&i| pred(i))
+            .min_by_key(|&i| indexed.code_rows[i].1)
     };
-    let query = sql::Query {
-        dialect,
-        data_table,
-        crosswalk_table,
-        crosswalk_has_origin: false,
-        code_column: config.data.code_column.clone(),
-        state_column: config.data.state_column.clone(),
-        period_column: config.data.period_column.clone(),
-        codes,
-        variables: config
-            .requests
-            .iter()
-            .map(|r| match r {
-                Request::Count(c) => sql::Variable::Count(c.clone()),
-                Request::Ratio {
-                    name,
-                    numerator,
-                    denominator,
-                } => sql::Variable::Ratio {
-                    name: name.clone(),
-                    numerator: numerator.clone(),
-                    denominator: denominator.clone(),
-                },
-                Request::Mean { column, weight } => sql::Variable::Mean {
-                    column: column.clone(),
-                    weight: weight.clone(),
-                },
-            })
-            .collect(),
-        min_coverage: args.min_coverage,
-    };
-    let text = query.render();
-    write_to(&config.output, |w| w.write_all(text.as_bytes()))?;
-    say(
-        global,
-        format!(
-            "regionkey apply: wrote the {} query; nothing was allocated here",
-            dialect.as_str()
-        ),
-    );
+    if let Some(state_column) = &config.data.state_column {
+        let is_state = |i: usize| {
+            indexed.codes[i]
+                .state
+                .as_deref()
+                .is_some_and(|s| CodeForm::State.read(s).is_ok())
+        };
+        let good: u64 = (0..indexed.codes.len())
+            .filter(|&i| is_state(i))
+            .map(|i| indexed.code_rows[i].0)
+            .sum();
+        if good * 20 < rows {
+            if let Some(i) = first_bad(&|i| !is_state(i)) {
+                return Err(Error::input(
+                    Location::file(path)
+                        .at_line(indexed.code_rows[i].1)
+                        .in_column(state_column),
+                    format!(
+                        "--state-column {state_column}: {good} of {rows} rows hold a state code; the first is {:?}. Name the column that holds state codes (FIPS such as 06 or 6)",
+                        indexed.codes[i].state.as_deref().unwrap_or("")
+                    ),
+                ));
+            }
+        }
+    }
+    if form == CodeForm::Plain {
+        return Ok(());
+    }
+    let good: u64 = read
+        .iter()
+        .zip(&indexed.code_rows)
+        .filter(|(r, _)| r.is_ok())
+        .map(|(_, c)| c.0)
+        .sum();
+    if good * 20 < rows {
+        if let Some(i) = first_bad(&|i| read[i].is_err()) {
+            let why = read[i]
+                .as_ref()
+                .err()
+                .map(|e| e.to_string())
+                .unwrap_or_default();
+            let what = match form {
+                CodeForm::County => "county FIPS codes".to_string(),
+                CodeForm::State => "state FIPS codes".to_string(),
+                CodeForm::Digits(w) => format!("codes of {w} digits, as in the crosswalk"),
+                CodeForm::Plain => "codes".to_string(),
+            };
+            return Err(Error::input(
+                Location::file(path)
+                    .at_line(indexed.code_rows[i].1)
+                    .in_column(&config.data.code_column),
+                format!(
+                    "--code-column {}: {good} of {rows} rows hold one of the {what} expected; the first is {:?} ({why}). Name the column that holds the codes (to match names to codes first, use `regionkey match`)",
+                    config.data.code_column, indexed.codes[i].code
+                ),
+            ));
+        }
+    }
     Ok(())
 }
 
-/// Runs the command.
-pub fn run(args: Args, global: Global) -> Result<()> {
-    let config = check_args(&args)?;
-    if let Some(dialect) = &args.emit_sql {
-        return emit_sql(&args, &config, dialect, global);
-    }
+/// Reads, allocates and writes as `config` says; returns what was done.
+/// All outputs (results, report, sidecar) appear together at the end; the
+/// sidecar, renamed last, names the SHA-256 of the results it describes.
+pub fn execute(config: &Config) -> Result<Report> {
     let table = data::read(&config.data)?;
     let indexed = table.index();
     let mut findings: Vec<Finding> = Vec::new();
     if indexed.missing_code.0 > 0 {
-        findings.push(Finding {
-            kind: "missing-code",
-            code: String::new(),
-            period: String::new(),
-            rows: indexed.missing_code.0,
-            first_line: Some(indexed.missing_code.1),
-            detail: format!("rows with an empty {}; left out", config.data.code_column),
-        });
+        findings.push(finding(
+            "missing-code",
+            String::new(),
+            indexed.missing_code.0,
+            indexed.missing_code.1,
+            format!("rows with an empty {}; left out", config.data.code_column),
+        ));
     }
     if indexed.missing_period.0 > 0 {
-        findings.push(Finding {
-            kind: "missing-period",
-            code: String::new(),
-            period: String::new(),
-            rows: indexed.missing_period.0,
-            first_line: Some(indexed.missing_period.1),
-            detail: "rows with an empty period; left out".into(),
-        });
+        findings.push(finding(
+            "missing-period",
+            String::new(),
+            indexed.missing_period.0,
+            indexed.missing_period.1,
+            "rows with an empty period; left out".into(),
+        ));
     }
 
     // Normalize the distinct codes.
-    let kind = match (&config.crosswalk, config.to_vintage) {
-        (_, Some(_)) => CodeKind::County,
-        (Some((_, cw)), None) => code_kind(cw),
-        (None, None) => CodeKind::Text,
-    };
-    if config.data.state_column.is_some() && kind != CodeKind::County {
+    let form = form_of(config);
+    if config.data.state_column.is_some() && form != CodeForm::County {
         return Err(Error::Usage(
             "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
         ));
     }
-    let normalized: Vec<Option<String>> = indexed
+    let read: Vec<std::result::Result<String, FipsError>> = indexed
         .codes
         .iter()
-        .zip(&indexed.code_rows)
-        .map(|(raw, &(rows, first_line))| match normalize(kind, raw) {
+        .map(|raw| normalize(form, raw))
+        .collect();
+    check_column_contents(config, &indexed, form, &read)?;
+    let normalized: Vec<Option<String>> = read
+        .into_iter()
+        .zip(indexed.codes.iter().zip(&indexed.code_rows))
+        .map(|(r, (raw, &(rows, first_line)))| match r {
             Ok(c) => Some(c),
             Err(why) => {
                 let written = match &raw.state {
                     Some(s) => format!("{s}|{}", raw.code),
                     None => raw.code.clone(),
                 };
-                findings.push(Finding {
-                    kind: "unreadable-code",
-                    code: written,
-                    period: String::new(),
+                findings.push(finding(
+                    "unreadable-code",
+                    written,
                     rows,
-                    first_line: Some(first_line),
-                    detail: format!("{why}; rows left out"),
-                });
+                    first_line,
+                    format!("{why}; rows left out"),
+                ));
                 None
             }
         })
@@ -770,7 +1053,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     }
 
     // The crosswalk the plan is built from.
-    let (plan, carried, extra_names, crosswalk_label) = match config.to_vintage {
+    let (crosswalk, plan, carried, extra_names, crosswalk_label) = match config.to_vintage {
         Some(year) => {
             let reference = us_counties()?;
             if reference.units_in(year).next().is_none() {
@@ -793,7 +1076,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 shipped.as_ref(),
                 SHIPPED_CROSSWALK,
             );
-            if !c.unweighted.is_empty() && !args.skip_unweighted {
+            if !c.unweighted.is_empty() && !config.skip_unweighted {
                 let listed: Vec<String> = c
                     .unweighted
                     .iter()
@@ -808,16 +1091,16 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             findings.extend(c.findings);
             // Every unit of the vintage with --all-units; otherwise the units
             // the data's codes reach.
-            let mut targets: Vec<String> = if args.all_units {
+            let mut targets: Vec<String> = if config.all_units {
                 reference.units_in(year).map(|u| u.code.clone()).collect()
             } else {
                 Vec::new()
             };
             targets.sort();
             targets.dedup();
-            let carried = c.carried;
+            let carried_sources = c.carried;
             let plan = Plan::new(&c.crosswalk, &targets, |code| {
-                if carried.contains(code) {
+                if carried_sources.contains(code) {
                     Origin::Carried
                 } else {
                     Origin::Direct
@@ -840,7 +1123,13 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 ),
                 None => format!("built-in change history to {year}, {SHIPPED_CROSSWALK}"),
             };
-            (plan, carried.len(), Some(names), label)
+            // Codes of the data that were carried (not the other sources of
+            // the weight tables, which hold no data).
+            let carried = by_code
+                .keys()
+                .filter(|c| carried_sources.contains(*c))
+                .count();
+            (c.crosswalk, plan, carried, Some(names), label)
         }
         None => {
             let (path, cw) = config
@@ -848,6 +1137,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 .as_ref()
                 .ok_or_else(|| Error::Usage("no crosswalk".into()))?;
             (
+                cw.clone(),
                 Plan::new(cw, &[], |_| Origin::Direct),
                 0,
                 None,
@@ -871,17 +1161,32 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         }
         source_of.push(s);
     }
+    if config.to_vintage.is_none() && !by_code.is_empty() && unmatched.len() == by_code.len() {
+        let (code, &(_, line)) = unmatched
+            .iter()
+            .min_by_key(|(_, (_, l))| *l)
+            .expect("not empty");
+        return Err(Error::input(
+            Location::file(&config.data.path)
+                .at_line(line)
+                .in_column(&config.data.code_column),
+            format!(
+                "--code-column {}: no code of the column is a source code of the crosswalk (the first is {code:?}; the crosswalk's are like {:?}). Name the column that holds the codes, or check that the crosswalk starts from the data's units",
+                config.data.code_column,
+                plan.sources.first().map(String::as_str).unwrap_or("")
+            ),
+        ));
+    }
     let explained: BTreeSet<String> = findings.iter().map(|f| f.code.clone()).collect();
     for (code, (rows, first)) in unmatched {
         if !explained.contains(&code) {
-            findings.push(Finding {
-                kind: "unmatched-code",
+            findings.push(finding(
+                "unmatched-code",
                 code,
-                period: String::new(),
                 rows,
-                first_line: Some(first),
-                detail: "not a source code of the crosswalk; rows left out".into(),
-            });
+                first,
+                "not a source code of the crosswalk; rows left out".into(),
+            ));
         }
     }
     let cells = indexed.periods.len() as u64 * plan.sources.len() as u64;
@@ -894,7 +1199,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     }
     let folded = table.fold(&indexed, &source_of, plan.sources.len());
 
-    // Duplicates and absent sources.
+    // Duplicates.
     let with_period = config.data.period_column.is_some();
     let mut duplicates = 0u64;
     for p in 0..indexed.periods.len() {
@@ -911,33 +1216,6 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                     detail: format!(
                         "{rows} rows for this code and period; their values were added together"
                     ),
-                });
-            }
-        }
-    }
-    for (s, code) in plan.sources.iter().enumerate() {
-        let absent: Vec<usize> = (0..indexed.periods.len())
-            .filter(|&p| folded.cell(p, s).0 == 0)
-            .collect();
-        if absent.len() == indexed.periods.len() {
-            findings.push(Finding {
-                kind: "absent-source",
-                code: code.clone(),
-                period: String::new(),
-                rows: 0,
-                first_line: None,
-                detail: "a source of the crosswalk with no row in the data; its targets' coverage is lower".into(),
-            });
-        } else {
-            for p in absent {
-                findings.push(Finding {
-                    kind: "absent-source",
-                    code: code.clone(),
-                    period: indexed.periods[p].clone(),
-                    rows: 0,
-                    first_line: None,
-                    detail: "no row for this source in this period; its targets' coverage is lower"
-                        .into(),
                 });
             }
         }
@@ -974,49 +1252,124 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         .collect();
     let spec = Spec {
         measures,
-        min_coverage: args.min_coverage,
+        min_coverage: config.min_coverage,
     };
 
     // Write.
+    let (header, notes) = output_header(config, extra_names.is_some());
     let layout = ResultLayout {
-        names: config
-            .requests
-            .iter()
-            .map(|r| r.name().to_string())
-            .collect(),
-        notes: config
-            .requests
-            .iter()
-            .map(|r| match r {
-                Request::Mean { column, weight } => Some((
-                    format!("{column}_weighting"),
-                    weight.clone().unwrap_or_else(|| "target_share".into()),
-                )),
-                _ => None,
-            })
-            .collect(),
+        header,
+        notes,
         with_period,
         target_names: extra_names,
-        decimals: args.decimals,
+        numbers: config.numbers,
+        delimiter: if config.format == OutputFormat::Tsv {
+            b'\t'
+        } else {
+            b','
+        },
     };
-    let mut coverage = vec![(0u64, 0u64, 0u64, 0u64); spec.measures.len()];
+    let periods = indexed.periods.len();
+    let mut coverage = vec![CoverageCounts::default(); spec.measures.len()];
+    let mut written_sums = vec![0.0f64; spec.measures.len()];
     let mut overlaps: Vec<(usize, usize)> = Vec::new();
+    // (target, period) estimates with coverage below one, for the report.
+    let mut thin = vec![false; plan.targets.len() * periods];
     let run_allocation =
         |targets: std::ops::Range<usize>| allocate_range(&plan, &folded.values, &spec, targets);
     let mut seen = |a: &Allocation| {
         add_coverage(&mut coverage, a);
+        for t in a.first_target..a.first_target + a.targets {
+            for p in 0..a.periods {
+                for (m, e) in a.row(t, p).iter().enumerate() {
+                    if let Some(v) = e.value {
+                        written_sums[m] += v;
+                    }
+                    if e.coverage < 1.0 - 1e-9 {
+                        thin[t * periods + p] = true;
+                    }
+                }
+            }
+        }
         overlaps.extend(a.overlaps.iter().copied());
     };
-    write_to(&config.output, |w| {
-        data::write_results(
-            w,
-            &plan,
-            &indexed.periods,
-            &run_allocation,
-            &mut seen,
-            &layout,
-        )
-    })?;
+    let mut staged = Staged::new();
+    let written = match config.format {
+        OutputFormat::Parquet => {
+            let allocation = run_allocation(0..plan.targets.len());
+            seen(&allocation);
+            staged.stage_target(&config.output, |w| {
+                data::write_results_parquet(w, &plan, &indexed.periods, &allocation, &layout)
+            })?
+        }
+        _ => staged.stage_target(&config.output, |w| {
+            data::write_results(
+                w,
+                &plan,
+                &indexed.periods,
+                &run_allocation,
+                &mut seen,
+                &layout,
+            )
+        })?,
+    };
+
+    // Absent sources, now that coverage is known: a line says the targets'
+    // coverage is lower only where it is.
+    let mut targets_of: Vec<Vec<usize>> = vec![Vec::new(); plan.sources.len()];
+    for t in 0..plan.targets.len() {
+        for l in plan.links_of(t) {
+            targets_of[l.source as usize].push(t);
+        }
+    }
+    for (s, code) in plan.sources.iter().enumerate() {
+        let absent: Vec<usize> = (0..periods).filter(|&p| folded.cell(p, s).0 == 0).collect();
+        if absent.is_empty() {
+            continue;
+        }
+        let lowered = |p: usize| {
+            let mut ts: Vec<&str> = targets_of[s]
+                .iter()
+                .filter(|&&t| thin[t * periods + p])
+                .map(|&t| plan.targets[t].as_str())
+                .collect();
+            ts.dedup();
+            ts
+        };
+        let detail = |ts: Vec<&str>, what: &str| {
+            if ts.is_empty() {
+                format!(
+                    "{what}; the land it covers has data from other codes, so no coverage is lower"
+                )
+            } else {
+                format!("{what}; the coverage of {} is lower", ts.join(", "))
+            }
+        };
+        if absent.len() == periods && periods > 0 {
+            let mut ts: Vec<&str> = absent.iter().flat_map(|&p| lowered(p)).collect();
+            ts.sort();
+            ts.dedup();
+            findings.push(Finding {
+                kind: "absent-source",
+                code: code.clone(),
+                period: String::new(),
+                rows: 0,
+                first_line: None,
+                detail: detail(ts, "a source of the crosswalk with no row in the data"),
+            });
+        } else {
+            for p in absent {
+                findings.push(Finding {
+                    kind: "absent-source",
+                    code: code.clone(),
+                    period: indexed.periods[p].clone(),
+                    rows: 0,
+                    first_line: None,
+                    detail: detail(lowered(p), "no row for this source in this period"),
+                });
+            }
+        }
+    }
     for &(t, p) in &overlaps {
         findings.push(Finding {
             kind: "overlap",
@@ -1027,48 +1380,199 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             detail: "old and new codes of this unit both have values in this period; the same land is counted twice".into(),
         });
     }
+
+    // Balances of the counts.
+    let mut to_targets = vec![0.0f64; plan.sources.len()];
+    let mut outside_weight = vec![0.0f64; plan.sources.len()];
+    for r in &crosswalk.rows {
+        let Some(s) = plan.source_index(&r.from_code) else {
+            continue;
+        };
+        match &r.to_code {
+            Some(t) if plan.targets.binary_search(t).is_ok() => to_targets[s] += r.weight,
+            Some(_) => {}
+            None => outside_weight[s] += r.weight,
+        }
+    }
+    let mut balances = Vec::new();
+    for (m, r) in config.requests.iter().enumerate() {
+        let Request::Count(name) = r else { continue };
+        let c = column(name);
+        let (mut expected, mut outside, mut unbalanced) = (0.0, 0.0, 0.0);
+        let mut by_period = Vec::new();
+        for p in 0..periods {
+            let (mut in_p, mut out_p) = (0.0, 0.0);
+            for s in 0..plan.sources.len() {
+                if let Some(v) = folded.values.get(p, s, c) {
+                    in_p += v;
+                    out_p += v * outside_weight[s];
+                    expected += v * to_targets[s];
+                    unbalanced += v * (1.0 - to_targets[s] - outside_weight[s]);
+                }
+            }
+            outside += out_p;
+            if out_p != 0.0 {
+                findings.push(Finding {
+                    kind: "outside",
+                    code: String::new(),
+                    period: indexed.periods[p].clone(),
+                    rows: 0,
+                    first_line: None,
+                    detail: format!(
+                        "{name}: {} of {} ({:.2} %) lies outside every target of the crosswalk and is in no output figure",
+                        human(out_p),
+                        human(in_p),
+                        if in_p != 0.0 { 100.0 * out_p / in_p } else { 0.0 }
+                    ),
+                });
+            }
+            by_period.push((indexed.periods[p].clone(), in_p, out_p));
+        }
+        balances.push(Balance {
+            variable: name.clone(),
+            input: folded.totals[c],
+            allocated: written_sums[m],
+            outside,
+            left_out: folded.left_out[c],
+            emptied: expected - written_sums[m],
+            unbalanced,
+            outside_by_period: by_period,
+        });
+    }
+
     findings.sort();
     if let Some(report) = &config.report {
-        write_file(report, |w| write_report(w, &findings))?;
+        staged.stage(report, |w| write_report(w, &findings))?;
     }
     let counts = count_findings(&findings);
-    let summary = Summary {
+    let mut report = Report {
         rows: table.rows as u64,
-        rows_allocated: (0..indexed.periods.len())
+        rows_allocated: (0..periods)
             .flat_map(|p| (0..plan.sources.len()).map(move |s| (p, s)))
             .map(|(p, s)| folded.cell(p, s).0 as u64)
             .sum(),
         targets: plan.targets.len(),
-        periods: if with_period {
-            indexed.periods.len()
-        } else {
-            0
-        },
+        periods: if with_period { periods } else { 0 },
         carried,
         duplicates,
+        findings,
         counts,
-        coverage,
+        coverage: config
+            .requests
+            .iter()
+            .map(|r| r.name().to_string())
+            .zip(coverage)
+            .collect(),
+        balances,
+        crosswalk_label,
+        output: written,
+        sidecar: None,
     };
     if let Target::File(path) = &config.output {
         let sidecar = sidecar_path(path);
-        let json = sidecar_json(&args, &config, &crosswalk_label, &summary, &layout)?;
-        write_file(&sidecar, |w| w.write_all(json.as_bytes()))?;
+        let meta = sidecar_record(config, &report)?;
+        staged.stage(&sidecar, |w| meta.write(w))?;
+        report.sidecar = Some(sidecar);
     }
-    print_summary(global, &config, &summary);
+    staged.commit()?;
+    Ok(report)
+}
+
+/// A number for a person to read: ten significant digits at most.
+fn human(v: f64) -> String {
+    NumberFormat::Significant(10).format(v)
+}
+
+/// How the data's codes are read for a crosswalk (as [`execute`] reads them).
+fn form_of(config: &Config) -> CodeForm {
+    match (&config.crosswalk, config.to_vintage) {
+        (_, Some(_)) => CodeForm::County,
+        (Some((_, cw)), None) => CodeForm::detect(cw.rows.iter().map(|r| r.from_code.as_str())),
+        (None, None) => CodeForm::Plain,
+    }
+}
+
+/// Writes the query of `--emit-sql`.
+fn emit_sql(args: &Args, config: &Config, dialect: &str, global: Global) -> Result<()> {
+    if config.data.state_column.is_some() && form_of(config) != CodeForm::County {
+        return Err(Error::Usage(
+            "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
+        ));
+    }
+    use crate::core::sql;
+    let dialect: sql::Dialect = dialect
+        .parse()
+        .map_err(|e: String| Error::Usage(format!("--emit-sql: {e}")))?;
+    let (data_table, crosswalk_table) = args
+        .sql_tables
+        .split_once(',')
+        .map(|(d, c)| (d.trim().to_string(), c.trim().to_string()))
+        .filter(|(d, c)| !d.is_empty() && !c.is_empty())
+        .ok_or_else(|| {
+            Error::Usage(format!(
+                "--sql-tables {:?}: give two table names separated by a comma",
+                args.sql_tables
+            ))
+        })?;
+    let codes = match form_of(config) {
+        CodeForm::County => sql::CodeForm::County,
+        CodeForm::State => sql::CodeForm::State,
+        CodeForm::Digits(w) => sql::CodeForm::Digits(w),
+        CodeForm::Plain => sql::CodeForm::Text,
+    };
+    let query = sql::Query {
+        dialect,
+        data_table,
+        crosswalk_table,
+        crosswalk_has_origin: false,
+        code_column: config.data.code_column.clone(),
+        state_column: config.data.state_column.clone(),
+        period_column: config.data.period_column.clone(),
+        codes,
+        variables: config
+            .requests
+            .iter()
+            .map(|r| match r {
+                Request::Count(c) => sql::Variable::Count(c.clone()),
+                Request::Ratio {
+                    name,
+                    numerator,
+                    denominator,
+                } => sql::Variable::Ratio {
+                    name: name.clone(),
+                    numerator: numerator.clone(),
+                    denominator: denominator.clone(),
+                },
+                Request::Mean { column, weight } => sql::Variable::Mean {
+                    column: column.clone(),
+                    weight: weight.clone(),
+                },
+            })
+            .collect(),
+        min_coverage: config.min_coverage,
+        columns: output_header(config, false).0,
+    };
+    let text = query.render();
+    crate::io::output::write_to(&config.output, |w| w.write_all(text.as_bytes()))?;
+    say(
+        global,
+        format!(
+            "regionkey apply: wrote the {} query; nothing was allocated here",
+            dialect.as_str()
+        ),
+    );
     Ok(())
 }
 
-/// Figures for the summary and the sidecar.
-struct Summary {
-    rows: u64,
-    rows_allocated: u64,
-    targets: usize,
-    periods: usize,
-    carried: usize,
-    duplicates: u64,
-    counts: BTreeMap<&'static str, (u64, u64)>,
-    /// Per measure: (estimates, full coverage, partial, none).
-    coverage: Vec<(u64, u64, u64, u64)>,
+/// Runs the command: arguments, checked configuration, execution, summary.
+pub fn run(args: Args, global: Global) -> Result<()> {
+    let config = Config::from_args(&args)?;
+    if let Some(dialect) = &args.emit_sql {
+        return emit_sql(&args, &config, dialect, global);
+    }
+    let report = execute(&config)?;
+    print_summary(global, &config, &report);
+    Ok(())
 }
 
 fn count_findings(findings: &[Finding]) -> BTreeMap<&'static str, (u64, u64)> {
@@ -1081,116 +1585,138 @@ fn count_findings(findings: &[Finding]) -> BTreeMap<&'static str, (u64, u64)> {
     out
 }
 
-fn add_coverage(c: &mut [(u64, u64, u64, u64)], a: &Allocation) {
+fn add_coverage(c: &mut [CoverageCounts], a: &Allocation) {
     for (m, c) in c.iter_mut().enumerate() {
         for t in a.first_target..a.first_target + a.targets {
             for p in 0..a.periods {
                 let e = a.get(t, p, m);
-                c.0 += 1;
+                c.estimates += 1;
                 if e.coverage >= 1.0 - 1e-9 {
-                    c.1 += 1;
+                    c.full += 1;
                 } else if e.coverage > 0.0 {
-                    c.2 += 1;
+                    c.partial += 1;
                 } else {
-                    c.3 += 1;
+                    c.none += 1;
                 }
             }
         }
     }
 }
 
-fn print_summary(global: Global, config: &Config, s: &Summary) {
-    say(
-        global,
-        format!(
-            "regionkey apply: {} data rows; {} allocated",
-            s.rows, s.rows_allocated
-        ),
-    );
+/// The summary lines of a report, as printed on standard error.
+pub fn summary_lines(config: &Config, s: &Report) -> Vec<String> {
+    let mut out = vec![format!(
+        "regionkey apply: {} data rows; {} allocated",
+        s.rows, s.rows_allocated
+    )];
     for (kind, (n, rows)) in &s.counts {
-        say(global, format!("  {kind}: {n} ({rows} rows)"));
+        if *rows > 0 {
+            out.push(format!("  {kind}: {n} ({rows} rows)"));
+        } else {
+            out.push(format!("  {kind}: {n}"));
+        }
     }
     if s.carried > 0 {
-        say(
-            global,
-            format!("  codes carried from earlier vintages: {}", s.carried),
-        );
+        out.push(format!(
+            "  codes of the data carried from earlier vintages: {}",
+            s.carried
+        ));
     }
-    for (r, c) in config.requests.iter().zip(&s.coverage) {
-        say(
-            global,
-            format!(
-                "  {}: {} estimates; full coverage {}, partial {}, none {}",
-                r.name(),
-                c.0,
-                c.1,
-                c.2,
-                c.3
-            ),
+    for (name, c) in &s.coverage {
+        out.push(format!(
+            "  {name}: {} estimates; full coverage {}, partial {}, none {}",
+            c.estimates, c.full, c.partial, c.none
+        ));
+    }
+    for b in &s.balances {
+        let mut line = format!(
+            "  {}: in {} = allocated {} + outside every target {} + not allocated {}",
+            b.variable,
+            human(b.input),
+            human(b.allocated),
+            human(b.outside),
+            human(b.left_out)
         );
+        if b.emptied.abs() > 1e-9 * b.input.abs().max(1.0) {
+            line.push_str(&format!(
+                " + emptied below --min-coverage {}",
+                human(b.emptied)
+            ));
+        }
+        if b.unbalanced.abs() > 1e-9 * b.input.abs().max(1.0) {
+            line.push_str(&format!(
+                " + lost to weights not adding up to 1: {}",
+                human(b.unbalanced)
+            ));
+        }
+        out.push(line);
     }
     if let Some(r) = &config.report {
-        say(global, format!("  report: {}", r.display()));
+        out.push(format!("  report: {}", r.display()));
     } else if !s.counts.is_empty() {
-        say(global, "  (write the reported rows with --report FILE)");
+        out.push("  (write the reported rows with --report FILE)".into());
     }
-    say(global, format!("  {CAUTION}"));
+    out.push(format!("  {CAUTION}"));
+    out
+}
+
+fn print_summary(global: Global, config: &Config, s: &Report) {
+    for b in &s.balances {
+        if b.discrepancy().abs() > 1e-9 * b.input.abs().max(1.0) {
+            warn(format!(
+                "{}: the parts add up to {} less than came in ({}); please report this",
+                b.variable,
+                human(b.discrepancy()),
+                human(b.input)
+            ));
+        }
+    }
+    for line in summary_lines(config, s) {
+        say(global, line);
+    }
 }
 
 fn write_report(w: &mut dyn Write, findings: &[Finding]) -> std::io::Result<()> {
-    writeln!(w, "kind,code,period,rows,first_line,detail")?;
+    write_csv_record(
+        w,
+        &["kind", "code", "period", "rows", "first_line", "detail"],
+    )?;
     for f in findings {
-        writeln!(
+        write_csv_record(
             w,
-            "{},{},{},{},{},{}",
-            f.kind,
-            csv_field(&f.code),
-            csv_field(&f.period),
-            f.rows,
-            f.first_line.map_or(String::new(), |l| l.to_string()),
-            csv_field(&f.detail)
+            &[
+                f.kind,
+                &f.code,
+                &f.period,
+                &f.rows.to_string(),
+                &f.first_line.map_or(String::new(), |l| l.to_string()),
+                &f.detail,
+            ],
         )?;
     }
     Ok(())
 }
 
-/// The sidecar of `path`: `path` with `.json` appended.
-pub fn sidecar_path(path: &Path) -> PathBuf {
-    let mut s = path.as_os_str().to_owned();
-    s.push(".json");
-    PathBuf::from(s)
-}
-
-fn sidecar_json(
-    args: &Args,
-    config: &Config,
-    crosswalk_label: &str,
-    s: &Summary,
-    layout: &ResultLayout,
-) -> Result<String> {
+fn sidecar_record(config: &Config, s: &Report) -> Result<Sidecar> {
     use serde_json::json;
-    let mut inputs = vec![json!({
-        "role": "data",
-        "path": config.data.path.display().to_string(),
-        "sha256": data::sha256_file(&config.data.path)?,
-        "rows": s.rows,
-    })];
+    let mut meta = Sidecar::new("apply", s.output.clone());
+    meta.inputs
+        .push(SidecarInput::file("data", &config.data.path, Some(s.rows))?);
     if let Some((p, cw)) = &config.crosswalk {
-        inputs.push(json!({
-            "role": "crosswalk",
-            "path": p.display().to_string(),
-            "sha256": data::sha256_file(p)?,
-            "rows": cw.rows.len(),
-        }));
+        meta.inputs.push(SidecarInput::file(
+            "crosswalk",
+            p,
+            Some(cw.rows.len() as u64),
+        )?);
     }
-    let coverage: serde_json::Map<String, serde_json::Value> = layout
-        .names
+    meta.options = config.options.clone();
+    let coverage: serde_json::Map<String, serde_json::Value> = s
+        .coverage
         .iter()
-        .zip(&s.coverage)
         .map(|(n, c)| {
             (
                 n.clone(),
-                json!({"estimates": c.0, "full": c.1, "partial": c.2, "none": c.3}),
+                json!({"estimates": c.estimates, "full": c.full, "partial": c.partial, "none": c.none}),
             )
         })
         .collect();
@@ -1199,24 +1725,28 @@ fn sidecar_json(
         .iter()
         .map(|(k, (n, rows))| (k.to_string(), json!({"items": n, "rows": rows})))
         .collect();
-    let value = json!({
-        "command": "apply",
-        "regionkey_version": env!("CARGO_PKG_VERSION"),
-        "inputs": inputs,
-        "crosswalk": crosswalk_label,
-        "options": {
-            "code_column": args.code_column,
-            "state_column": args.state_column,
-            "period_column": args.period_column,
-            "to_vintage": args.to_vintage,
-            "sum": args.sums,
-            "ratio": args.ratios,
-            "mean": args.means,
-            "min_coverage": args.min_coverage,
-            "decimals": args.decimals,
-            "missing": args.missing,
-        },
-        "counts": {
+    let balances: serde_json::Map<String, serde_json::Value> = s
+        .balances
+        .iter()
+        .map(|b| {
+            (
+                b.variable.clone(),
+                json!({
+                    "input": b.input,
+                    "allocated": b.allocated,
+                    "outside_every_target": b.outside,
+                    "not_allocated": b.left_out,
+                    "emptied_below_min_coverage": b.emptied,
+                    "lost_to_unbalanced_weights": b.unbalanced,
+                }),
+            )
+        })
+        .collect();
+    let d = &mut meta.details;
+    d.insert("crosswalk".into(), json!(s.crosswalk_label));
+    d.insert(
+        "counts".into(),
+        json!({
             "data_rows": s.rows,
             "rows_allocated": s.rows_allocated,
             "targets": s.targets,
@@ -1224,13 +1754,11 @@ fn sidecar_json(
             "codes_carried": s.carried,
             "duplicate_cells": s.duplicates,
             "reported": reported,
-        },
-        "coverage": coverage,
-        "caution": CAUTION,
-    });
-    serde_json::to_string_pretty(&value)
-        .map(|t| t + "\n")
-        .map_err(|e| Error::Usage(format!("cannot write metadata: {e}")))
+        }),
+    );
+    d.insert("coverage".into(), json!(coverage));
+    d.insert("balance".into(), json!(balances));
+    Ok(meta)
 }
 
 /// Reads a data table (exposed for tests of the data path).
@@ -1270,19 +1798,52 @@ mod tests {
     }
 
     #[test]
+    fn rate_like_names_are_recognized_and_counts_are_not() {
+        for n in [
+            "rate",
+            "unemployment_rate",
+            "pct_poor",
+            "poverty pct",
+            "percent_uninsured",
+            "deaths_per_1000",
+            "per100k",
+            "share",
+            "served_share",
+            "sex_ratio",
+            "proportion_over_65",
+            "UnemploymentRate",
+        ] {
+            assert!(looks_like_rate(n), "{n}");
+        }
+        for n in [
+            "population",
+            "households_served",
+            "unemployed",
+            "meals",
+            "labor_force",
+            "persons",
+            "operators",
+            "shares_outstanding",
+            "cases",
+        ] {
+            assert!(!looks_like_rate(n), "{n}");
+        }
+    }
+
+    #[test]
     fn codes_with_a_separate_state_part_are_joined() {
         let raw = RawCode {
             state: Some("6".into()),
             code: "37".into(),
         };
-        assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
+        assert_eq!(normalize(CodeForm::County, &raw), Ok("06037".into()));
         let raw = RawCode {
             state: None,
             code: "6037.0".into(),
         };
-        assert_eq!(normalize(CodeKind::County, &raw), Ok("06037".into()));
+        assert_eq!(normalize(CodeForm::County, &raw), Ok("06037".into()));
         assert!(normalize(
-            CodeKind::County,
+            CodeForm::County,
             &RawCode {
                 state: None,
                 code: "abc".into()

@@ -470,30 +470,36 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     );
     let harmonized = dir.join("harmonized-2023.csv");
     let apply_report = dir.join("harmonized-2023-report.csv");
-    let apply = super::Cli::try_parse_from([
-        "regionkey",
-        "apply",
-        &arg(&matched),
-        "--to-vintage",
-        "2023",
-        "--code-column",
-        "code",
-        "--period-column",
-        "year",
-        "--sum",
-        "households_eligible,households_served,meals",
-        "--ratio",
-        "served_share=households_served/households_eligible",
-        "--missing",
-        "n/a",
-        "--report",
-        &arg(&apply_report),
-        "--output",
-        &arg(&harmonized),
-    ])
-    .map_err(|e| Error::Usage(format!("demo: {e}")))?;
-    if let super::Command::Apply(a) = apply.command {
-        super::apply::run(a, global)?;
+    let apply = super::apply::Args {
+        data: matched.clone(),
+        crosswalk: None,
+        to_vintage: Some(2023),
+        code_column: "code".into(),
+        state_column: None,
+        period_column: Some("year".into()),
+        sums: vec![
+            "households_eligible".into(),
+            "households_served".into(),
+            "meals".into(),
+        ],
+        ratios: vec!["served_share=households_served/households_eligible".into()],
+        means: Vec::new(),
+        min_coverage: 0.0,
+        decimals: None,
+        separator: None,
+        missing: Vec::new(),
+        allow_name: Vec::new(),
+        all_units: false,
+        skip_unweighted: false,
+        output: arg(&harmonized),
+        report: Some(apply_report.clone()),
+        emit_sql: None,
+        sql_tables: "data,crosswalk".into(),
+    };
+    let config = super::apply::Config::from_args(&apply)?;
+    let done = super::apply::execute(&config)?;
+    for line in super::apply::summary_lines(&config, &done) {
+        say(global, line);
     }
 
     // 3. A map of what joined.
@@ -592,7 +598,7 @@ fn summarize(
     let out = read_table(harmonized, ReadOptions::default())?;
     let cov = out.column("households_served_coverage")?;
     let code = out.column("code")?;
-    let period = out.column("period")?;
+    let period = out.column("year")?;
     let mut partial: Vec<String> = Vec::new();
     for r in &out.records {
         let c: f64 = r[cov].parse().unwrap_or(0.0);

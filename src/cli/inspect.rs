@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use super::Global;
 use crate::core::crosswalk::SUM_TOLERANCE;
 use crate::error::{Error, Location, Result};
-use crate::io::crosswalk_file::read_csv;
+use crate::io::crosswalk_file::read_file;
 
 /// Arguments.
 #[derive(Debug, clap::Args)]
@@ -34,7 +34,8 @@ pub fn run(args: Args, _global: Global) -> Result<()> {
             args.tolerance
         )));
     }
-    let cw = read_csv(&args.file)?;
+    let file = read_file(&args.file)?;
+    let cw = &file.crosswalk;
     let s = cw.summary(args.top);
     let mut out = String::new();
     out.push_str(&format!("{}\n", args.file.display()));
@@ -63,17 +64,36 @@ pub fn run(args: Args, _global: Global) -> Result<()> {
     crate::io::output::write_to(&crate::io::output::Target::Stdout, |w| {
         w.write_all(out.as_bytes())
     })?;
-    let problems = cw.validate(args.tolerance);
+    let mut lines: Vec<(Option<usize>, String, String)> = file
+        .repairs
+        .iter()
+        .map(|r| {
+            (
+                Some(r.row),
+                r.side.to_string(),
+                format!(
+                    "{} {:?} is not written as the column's other codes are; read as {} ({}). Write codes as text so they keep their leading zeros",
+                    r.side, r.written, r.code, r.repairs
+                ),
+            )
+        })
+        .collect();
+    lines.extend(
+        cw.validate(args.tolerance)
+            .into_iter()
+            .map(|p| (p.row, p.from_code, p.message)),
+    );
+    lines.sort_by_key(|(row, _, _)| row.map_or(usize::MAX, |r| r));
+    let problems = lines;
     if problems.is_empty() {
         return Ok(());
     }
-    for p in problems.iter().take(50) {
-        let at = match p.row {
-            // The header is line 1.
-            Some(r) => format!("{}: line {}", args.file.display(), r + 2),
-            None => format!("{}: source {}", args.file.display(), p.from_code),
+    for (row, code, message) in problems.iter().take(50) {
+        let at = match row {
+            Some(r) => format!("{}: line {}", args.file.display(), file.lines[*r]),
+            None => format!("{}: source {code}", args.file.display()),
         };
-        eprintln!("{at}: {}", p.message);
+        eprintln!("{at}: {message}");
     }
     if problems.len() > 50 {
         eprintln!("... and {} more", problems.len() - 50);

@@ -152,6 +152,9 @@ pub fn draw(args: &Args) -> Result<MapCounts> {
         key_option: "--key",
         object_option: "--object",
     })?;
+    for note in layer.notes(crate::io::geo::RepeatedKeys::Merge, None)? {
+        super::warn(note);
+    }
     let prepared = prepare(&layer.features, layer.convention);
     let on_layer: BTreeSet<&str> = prepared.units.iter().map(|u| u.key.as_str()).collect();
     counts.off_layer = rows

@@ -7,32 +7,20 @@
 //! names, all seven added columns are prefixed with `rk_` (and if one of
 //! those is taken too, the command stops with an error naming the column).
 
-use std::collections::HashMap;
-
-use rayon::prelude::*;
 use std::io::Write;
 use std::path::PathBuf;
 
 use super::{say, warn, Global};
-use crate::core::matcher::{CodeForm, Matcher, Method, Resolution, Status};
+pub use crate::core::match_table::ADDED_COLUMNS;
+use crate::core::match_table::{added_fields, match_rows, Matched, Settings, Tally};
+use crate::core::matcher::{CodeForm, Matcher, Status};
 use crate::core::reference::Reference;
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::{read_reference_file, us_counties, us_states};
-use crate::io::output::{fixed, write_to, Target};
+use crate::io::output::{write_to, Target};
 use crate::io::progress::Progress;
-use crate::io::review::{read_decisions, write_review, Choice, Decision, ReviewItem, NONE};
+use crate::io::review::{read_decisions, write_review, Decisions};
 use crate::io::table::{read_table, ReadOptions, Table};
-
-/// The columns `regionkey match` adds, in order.
-pub const ADDED_COLUMNS: [&str; 7] = [
-    "code",
-    "code_name",
-    "match_status",
-    "match_method",
-    "match_score",
-    "note",
-    "candidates",
-];
 
 /// Prefix of the added columns when the input already uses one of their names.
 pub const COLUMN_PREFIX: &str = "rk_";
@@ -56,7 +44,9 @@ Every input row appears in the output, in input order. A name the matcher cannot
 match_status `review` (several candidates, or a doubtful one) or `unmatched` (a placeholder, a
 city that is not a county equivalent, nothing close). Write them out with --review FILE, fill in
 the `chosen_code` column (a code, or `none` to leave a name unmatched), and pass the file back
-with --decisions FILE: decisions win on every later run.")]
+with --decisions FILE: decisions win on every later run, in the years of their row's `years`
+column (empty = every year). --distinct-keys FILE writes one row per distinct (name, state,
+year) with its result, a small table to join back where the data lives.")]
 pub struct Args {
     /// Input table: CSV, TSV (delimiter detected) or Parquet; `-` reads standard input.
     pub input: PathBuf,
@@ -96,9 +86,15 @@ pub struct Args {
     #[arg(long, short, value_name = "FILE", default_value = "-")]
     pub output: String,
 
-    /// Where to write the review list (CSV), one row per distinct name that needs a decision.
+    /// Where to write the review list (CSV), one row per distinct name (and
+    /// run of years) that needs a decision.
     #[arg(long, value_name = "FILE")]
     pub review: Option<String>,
+
+    /// Where to write one row per distinct (name, state, year) with its
+    /// result (CSV): the table to join back where the data lives.
+    #[arg(long, value_name = "FILE")]
+    pub distinct_keys: Option<String>,
 
     /// Field delimiter of the input (a single character, or `tab`); detected when absent.
     #[arg(long, value_name = "C", value_parser = parse_delimiter)]
@@ -116,7 +112,7 @@ fn parse_delimiter(text: &str) -> std::result::Result<u8, String> {
 }
 
 /// Where the units come from.
-enum Source {
+pub enum Source {
     /// A built-in reference.
     Builtin(&'static Reference),
     /// The user's own list.
@@ -124,7 +120,8 @@ enum Source {
 }
 
 impl Source {
-    fn get(&self) -> &Reference {
+    /// The reference.
+    pub fn get(&self) -> &Reference {
         match self {
             Source::Builtin(r) => r,
             Source::File(r) => r,
@@ -132,30 +129,80 @@ impl Source {
     }
 }
 
-/// The checked configuration.
-struct Config {
-    source: Source,
-    codes: CodeForm,
-    vintage: u16,
+/// The checked configuration of one run.
+pub struct Config {
+    /// Input table (`-` for standard input).
+    pub input: PathBuf,
+    /// Its field delimiter, when given.
+    pub delimiter: Option<u8>,
+    /// Column of names (or codes).
+    pub name_column: String,
+    /// Column of states, if any.
+    pub state_column: Option<String>,
+    /// Column of each row's year, if any.
+    pub vintage_column: Option<String>,
+    /// What the names are matched against.
+    pub source: Source,
+    /// How numbers in the name column are read.
+    pub codes: CodeForm,
+    /// The vintage of rows without a year of their own.
+    pub vintage: u16,
     /// First and latest vintage the reference covers.
-    span: (u16, u16),
-    output: Target,
-    review: Option<Target>,
+    pub span: (u16, u16),
+    /// Decisions file, if any.
+    pub decisions: Option<PathBuf>,
+    /// The matched table.
+    pub output: Target,
+    /// The review list, if asked for.
+    pub review: Option<Target>,
+    /// The distinct keys with their results, if asked for.
+    pub distinct_keys: Option<Target>,
+    /// No progress bar.
+    pub quiet: bool,
 }
 
-fn configure(args: &Args) -> Result<Config> {
+/// What a run did, for the summary.
+#[derive(Debug, Clone, Default)]
+pub struct Report {
+    /// Counts by status and method, names, decisions.
+    pub tally: Tally,
+    /// Things the user should know (encoding fallback, a state column not used).
+    pub warnings: Vec<String>,
+    /// True when a review file was written.
+    pub review_written: bool,
+    /// Rows written to the distinct-keys file, if one was asked for.
+    pub distinct_keys: Option<usize>,
+}
+
+/// Turns arguments into a checked configuration: outputs writable and
+/// distinct, the reference read, the vintage inside it.
+pub fn configure(args: &Args, global: Global) -> Result<Config> {
     let output = Target::parse(&args.output);
     output.check_writable()?;
-    let review = args.review.as_deref().map(Target::parse);
-    if let Some(r) = &review {
-        r.check_writable()?;
-        if *r == output {
-            return Err(Error::Usage(
-                "--review and --output name the same place; give the review list its own file"
-                    .into(),
-            ));
+    let mut others: Vec<(&str, Target)> = Vec::new();
+    for (flag, value) in [
+        ("--review", &args.review),
+        ("--distinct-keys", &args.distinct_keys),
+    ] {
+        if let Some(v) = value {
+            let t = Target::parse(v);
+            t.check_writable()?;
+            if t == output || others.iter().any(|(_, o)| *o == t) {
+                return Err(Error::Usage(format!(
+                    "{flag} names the same place as another output; give each output its own file"
+                )));
+            }
+            others.push((flag, t));
         }
     }
+    let take = |flag: &str, others: &mut Vec<(&str, Target)>| {
+        others
+            .iter()
+            .position(|(f, _)| *f == flag)
+            .map(|i| others.remove(i).1)
+    };
+    let review = take("--review", &mut others);
+    let distinct_keys = take("--distinct-keys", &mut others);
     let (source, codes) = match (&args.reference, args.level) {
         (Some(_), Some(_)) => {
             return Err(Error::Usage(
@@ -188,103 +235,33 @@ fn configure(args: &Args) -> Result<Config> {
         )));
     }
     Ok(Config {
+        input: args.input.clone(),
+        delimiter: args.delimiter,
+        name_column: args.name_column.clone(),
+        state_column: args.state_column.clone(),
+        vintage_column: args.vintage_column.clone(),
         source,
         codes,
         vintage,
         span: (first, latest),
+        decisions: args.decisions.clone(),
         output,
         review,
+        distinct_keys,
+        quiet: global.quiet,
     })
 }
 
-fn pair_key(buf: &mut String, name: &str, state: &str) {
-    buf.clear();
-    buf.push_str(name.trim());
-    buf.push('\u{1f}');
-    buf.push_str(state.trim());
-}
-
-/// The matchers of the vintages met so far, built on first use.
-struct Matchers<'r> {
-    reference: &'r Reference,
-    codes: CodeForm,
-    built: HashMap<u16, Matcher<'r>>,
-}
-
-impl<'r> Matchers<'r> {
-    fn get(&mut self, vintage: u16) -> &Matcher<'r> {
-        let (reference, codes) = (self.reference, self.codes);
-        self.built
-            .entry(vintage)
-            .or_insert_with(|| Matcher::new(reference, vintage, codes))
-    }
-}
-
-/// The decisions of `--decisions`, by (name, state) key.
-fn load_decisions(args: &Args) -> Result<HashMap<String, Decision>> {
-    let mut out = HashMap::new();
-    let Some(path) = &args.decisions else {
-        return Ok(out);
-    };
-    for d in read_decisions(path)? {
-        let mut k = String::new();
-        pair_key(&mut k, &d.name, &d.state);
-        out.insert(k, d);
-    }
-    Ok(out)
-}
-
-/// The resolution a decision gives in `vintage`. With per-row vintages
-/// (`any_vintage`), a code that is not a unit of that vintage but is one of
-/// another vintage is accepted with a note, since one decision covers the
-/// name in every year. Otherwise a code outside the vintage is an error
-/// naming the decision's line and column.
-fn decide(
-    matchers: &mut Matchers<'_>,
-    vintage: u16,
-    d: &Decision,
-    any_vintage: bool,
-) -> Result<Resolution> {
-    let code = match &d.choice {
-        Choice::NotAUnit => None,
-        Choice::Code(c) => Some(c.as_str()),
-    };
-    if let Some(r) = matchers.get(vintage).decided(code) {
-        return Ok(r);
-    }
-    let Some(c) = code else {
-        unreachable!("`none` always resolves")
-    };
-    let eras = if any_vintage {
-        matchers.reference.eras(c)
-    } else {
-        Vec::new()
-    };
-    if let Some(era) = eras.first() {
-        let valid = era.valid.from;
-        if let Some(mut r) = matchers.get(valid).decided(Some(c)) {
-            r.note = format!("decided code is a unit of another vintage (from {valid})");
-            return Ok(r);
-        }
-    }
-    Err(Error::input(
-        d.location.clone(),
-        format!(
-            "{c:?} is not a unit in {vintage} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched"
-        ),
-    ))
-}
-
 /// The year of a row's vintage column: the first four digits ("2015",
-/// "2015.0", "2015-06-30"); years after the latest vintage use the latest.
-fn row_vintage(table: &Table, row: usize, col: usize, span: (u16, u16)) -> Result<u16> {
+/// "2015.0", "2015-06-30"), no earlier than the reference's first vintage.
+fn row_year(table: &Table, row: usize, col: usize, span: (u16, u16)) -> Result<u16> {
     let text = table.records[row][col].trim();
     let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
     let year = (digits.len() == 4)
         .then(|| digits.parse::<u16>().ok())
         .flatten();
     match year {
-        Some(y) if y >= span.0 => Ok(y.min(span.1)),
+        Some(y) if y >= span.0 => Ok(y),
         Some(y) => Err(Error::input(
             table.location(row, col),
             format!(
@@ -321,149 +298,227 @@ fn added_columns(table: &Table) -> Result<Vec<String>> {
     Ok(prefixed)
 }
 
-/// One distinct (name, state) of the input.
-struct Distinct {
-    name: String,
-    state: String,
-    rows: u64,
-    resolution: Resolution,
-    /// What the matcher said without the decision (for the review file).
-    matcher: Option<Resolution>,
-    decided: bool,
+/// Header names (folded: lower case, letters and digits only) that say a
+/// column holds states.
+const STATE_LIKE: &[&str] = &[
+    "state",
+    "st",
+    "states",
+    "statename",
+    "stname",
+    "stateabbr",
+    "stateabbrev",
+    "stateabbreviation",
+    "statecode",
+    "statefips",
+    "statefp",
+    "stusps",
+    "stabbr",
+    "usps",
+];
+
+/// Further header names that say a column holds the parents of a user's
+/// own units.
+const PARENT_LIKE: &[&str] = &[
+    "parent",
+    "parentname",
+    "parentcode",
+    "province",
+    "region",
+    "regionname",
+    "regioncode",
+];
+
+fn folded(header: &str) -> String {
+    header
+        .chars()
+        .filter(char::is_ascii_alphanumeric)
+        .collect::<String>()
+        .to_ascii_lowercase()
 }
 
-/// Runs the command.
-pub fn run(args: Args, global: Global) -> Result<()> {
-    let config = configure(&args)?;
-    let reference = config.source.get();
-    let mut matchers = Matchers {
-        reference,
-        codes: config.codes,
-        built: HashMap::new(),
-    };
-    let decisions = load_decisions(&args)?;
-    // Without a vintage column, every decision is checked now, before the
-    // long work starts.
-    if args.vintage_column.is_none() {
-        for d in decisions.values() {
-            decide(&mut matchers, config.vintage, d, false)?;
+/// Distinct non-empty values of a column, in input order, with the row of
+/// their first appearance.
+fn distinct_values(table: &Table, col: usize) -> Vec<(&str, usize)> {
+    let mut seen: std::collections::HashSet<&str> = std::collections::HashSet::new();
+    let mut out = Vec::new();
+    for (row, r) in table.records.iter().enumerate() {
+        let v = r[col].trim();
+        if !v.is_empty() && seen.insert(v) {
+            out.push((v, row));
         }
     }
+    out
+}
 
+/// True for a value made of digits (with separators, a sign or decimals).
+fn is_number(text: &str) -> bool {
+    text.bytes().any(|b| b.is_ascii_digit())
+        && text
+            .bytes()
+            .all(|b| b.is_ascii_digit() || matches!(b, b'.' | b',' | b'-' | b'+' | b' '))
+}
+
+/// Options that would run and succeed while matching nothing: a state
+/// column of years, a name column of numbers that are no codes. Stops with
+/// an error naming the column and a value. A column that holds states but
+/// was not given as --state-column is a warning.
+fn check_columns(
+    config: &Config,
+    table: &Table,
+    matcher: &Matcher<'_>,
+    name_col: usize,
+    state_col: Option<usize>,
+    vintage_col: Option<usize>,
+) -> Result<Vec<String>> {
+    let mut warnings = Vec::new();
+    if let Some(col) = state_col {
+        let values = distinct_values(table, col);
+        let states = values
+            .iter()
+            .filter(|(v, _)| matcher.parent_of(v).is_some())
+            .count();
+        if !values.is_empty() && states * 10 < values.len() {
+            let (example, row) = values
+                .iter()
+                .find(|(v, _)| matcher.parent_of(v).is_none())
+                .copied()
+                .unwrap_or(values[0]);
+            return Err(Error::input(
+                table.location(row, col),
+                format!(
+                    "--state-column names a column whose values are not states of {} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
+                    config.source.get().label,
+                    values.len()
+                ),
+            ));
+        }
+    }
+    let values = distinct_values(table, name_col);
+    if !values.is_empty() && values.iter().all(|(v, _)| is_number(v)) {
+        let sample = &values[..values.len().min(1000)];
+        let state_of = |row: usize| state_col.map(|c| table.records[row][c].trim());
+        let codes = sample
+            .iter()
+            .filter(|(v, row)| matcher.resolve(v, state_of(*row)).status != Status::Unmatched)
+            .count();
+        if codes * 2 < sample.len() {
+            let (example, row) = sample
+                .iter()
+                .find(|(v, row)| matcher.resolve(v, state_of(*row)).status == Status::Unmatched)
+                .copied()
+                .unwrap_or(sample[0]);
+            return Err(Error::input(
+                table.location(row, name_col),
+                format!(
+                    "--name-column names a column of numbers, and most are no code of {} (e.g. {example:?}; {codes} of {} are); name the column that holds the place names or codes",
+                    config.source.get().label,
+                    sample.len()
+                ),
+            ));
+        }
+    }
+    if state_col.is_none() && matcher.has_parents() && config.codes != CodeForm::State {
+        let user = matches!(config.source, Source::File(_));
+        for (col, header) in table.headers.iter().enumerate() {
+            let f = folded(header);
+            let like =
+                STATE_LIKE.contains(&f.as_str()) || (user && PARENT_LIKE.contains(&f.as_str()));
+            if !like || col == name_col || Some(col) == vintage_col {
+                continue;
+            }
+            let values = distinct_values(table, col);
+            let states = values
+                .iter()
+                .filter(|(v, _)| matcher.parent_of(v).is_some())
+                .count();
+            if !values.is_empty() && states * 2 >= values.len() {
+                warnings.push(format!(
+                    "{}: column {header:?} holds states but is not used; pass --state-column {header:?} to read each name within its state (without it a name is accepted only when it is unique in the whole reference)",
+                    table.path.display()
+                ));
+            }
+        }
+    }
+    Ok(warnings)
+}
+
+/// Runs one match: reads the input and the decisions, matches every
+/// distinct (name, state, year), writes the outputs.
+pub fn execute(config: &Config) -> Result<Report> {
+    let reference = config.source.get();
+    let decisions = match &config.decisions {
+        Some(path) => read_decisions(path)?,
+        None => Decisions::default(),
+    };
     let table = read_table(
-        &args.input,
+        &config.input,
         ReadOptions {
-            delimiter: args.delimiter,
+            delimiter: config.delimiter,
         },
     )?;
-    for w in &table.warnings {
-        warn(w);
-    }
-    let name_col = table.column(&args.name_column)?;
-    let state_col = args
+    let mut warnings = table.warnings.clone();
+    let name_col = table.column(&config.name_column)?;
+    let state_col = config
         .state_column
         .as_deref()
         .map(|c| table.column(c))
         .transpose()?;
-    let vintage_col = args
+    let vintage_col = config
         .vintage_column
         .as_deref()
         .map(|c| table.column(c))
         .transpose()?;
-    if state_col.is_some() && !matchers.get(config.vintage).has_parents() {
+    let matcher = Matcher::new(reference, config.vintage, config.codes);
+    if state_col.is_some() && !matcher.has_parents() {
         return Err(Error::Usage(format!(
             "--state-column: the reference {} has no parent units to read a state against",
             reference.label
         )));
     }
+    warnings.extend(check_columns(
+        config,
+        &table,
+        &matcher,
+        name_col,
+        state_col,
+        vintage_col,
+    )?);
+    drop(matcher);
     let added = added_columns(&table)?;
+    let years: Option<Vec<u16>> = match vintage_col {
+        None => None,
+        Some(c) => Some(
+            (0..table.len())
+                .map(|row| row_year(&table, row, c, config.span))
+                .collect::<Result<_>>()?,
+        ),
+    };
+    let names: Vec<&str> = table.records.iter().map(|r| &r[name_col]).collect();
+    let states: Option<Vec<&str>> =
+        state_col.map(|c| table.records.iter().map(|r| &r[c]).collect());
 
-    // Collect each distinct (name, state[, vintage]) once, in input order.
-    struct Pending<'t> {
-        name: &'t str,
-        state: &'t str,
-        vintage: u16,
-        rows: u64,
-    }
-    let progress = Progress::new(table.len() as u64, "matching", global.quiet);
-    let mut index: HashMap<String, u32> = HashMap::new();
-    let mut pending: Vec<Pending> = Vec::new();
-    let mut row_of: Vec<u32> = Vec::with_capacity(table.len());
-    let mut k = String::new();
-    for (i, record) in table.records.iter().enumerate() {
-        let name = &record[name_col];
-        let state = state_col.map_or("", |c| &record[c]);
-        let vintage = match vintage_col {
-            Some(c) => row_vintage(&table, i, c, config.span)?,
-            None => config.vintage,
-        };
-        pair_key(&mut k, name, state);
-        if vintage_col.is_some() {
-            k.push('\u{1f}');
-            k.push_str(&vintage.to_string());
-        }
-        let id = match index.get(k.as_str()) {
-            Some(&id) => id,
-            None => {
-                let id = pending.len() as u32;
-                pending.push(Pending {
-                    name,
-                    state,
-                    vintage,
-                    rows: 0,
-                });
-                index.insert(k.clone(), id);
-                id
-            }
-        };
-        pending[id as usize].rows += 1;
-        row_of.push(id);
-    }
-
-    // Resolve the distinct names on every core; the result does not depend
-    // on the thread count (each name is resolved alone, results kept in
-    // input order).
-    let vintages: std::collections::BTreeSet<u16> = pending.iter().map(|p| p.vintage).collect();
-    for v in vintages {
-        matchers.get(v);
-    }
-    let ready = &matchers.built;
-    let found: Vec<Resolution> = pending
-        .par_iter()
-        .map(|p| {
-            let r = ready[&p.vintage].resolve(p.name, state_col.map(|_| p.state));
-            progress.inc(p.rows);
-            r
-        })
-        .collect();
+    let progress = Progress::new(table.len() as u64, "matching", config.quiet);
+    let matched = match_rows(
+        reference,
+        Settings {
+            codes: config.codes,
+            vintage: config.vintage,
+            span: config.span,
+        },
+        &names,
+        states.as_deref(),
+        years.as_deref(),
+        &decisions,
+        &|n| progress.inc(n),
+    )?;
     progress.finish();
 
-    // Decisions win over what the matcher said.
-    let mut distinct: Vec<Distinct> = Vec::with_capacity(pending.len());
-    for (p, found) in pending.iter().zip(found) {
-        pair_key(&mut k, p.name, p.state);
-        let (resolution, matcher_said, decided) = match decisions.get(k.as_str()) {
-            Some(d) => (
-                decide(&mut matchers, p.vintage, d, vintage_col.is_some())?,
-                Some(found),
-                true,
-            ),
-            None => (found, None, false),
-        };
-        distinct.push(Distinct {
-            name: p.name.trim().to_string(),
-            state: p.state.trim().to_string(),
-            rows: p.rows,
-            resolution,
-            matcher: matcher_said,
-            decided,
-        });
-    }
-
-    // The added fields of each distinct pair, formatted once.
-    let fields: Vec<[String; 7]> = distinct
+    // The added fields of each distinct key, formatted once.
+    let fields: Vec<[String; 7]> = matched
+        .keys
         .iter()
-        .map(|d| added_fields(&d.resolution))
+        .map(|k| added_fields(&k.resolution))
         .collect();
     write_to(&config.output, |w: &mut dyn Write| {
         let mut out = csv::WriterBuilder::new()
@@ -476,7 +531,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
                 .map(String::as_str)
                 .chain(added.iter().map(String::as_str)),
         )?;
-        for (record, &id) in table.records.iter().zip(&row_of) {
+        for (record, &id) in table.records.iter().zip(&matched.row_key) {
             out.write_record(
                 record
                     .iter()
@@ -486,121 +541,100 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         out.flush()?;
         Ok(())
     })?;
-
     if let Some(target) = &config.review {
-        write_review(target, &review_items(&distinct))?;
+        write_review(target, &matched.review)?;
     }
-    summarize(
-        global,
-        &distinct,
-        table.len(),
-        decisions.len(),
-        config.review.is_some(),
-    );
+    let distinct_keys = match &config.distinct_keys {
+        Some(target) => {
+            let key_columns: Vec<&str> = [Some(name_col), state_col, vintage_col]
+                .into_iter()
+                .flatten()
+                .map(|c| table.headers[c].as_str())
+                .collect();
+            write_distinct_keys(
+                target,
+                &key_columns,
+                state_col.is_some(),
+                &added,
+                &matched,
+                &fields,
+            )?;
+            Some(matched.keys.len())
+        }
+        None => None,
+    };
+    Ok(Report {
+        tally: matched.tally(),
+        warnings,
+        review_written: config.review.is_some(),
+        distinct_keys,
+    })
+}
+
+/// One row per distinct (name, state, year): the key columns under the
+/// input's names, the added columns, and how many input rows carry the key.
+fn write_distinct_keys(
+    target: &Target,
+    key_columns: &[&str],
+    has_state: bool,
+    added: &[String],
+    matched: &Matched,
+    fields: &[[String; 7]],
+) -> Result<()> {
+    let rows_column = if key_columns.contains(&"rows") || added.iter().any(|a| a == "rows") {
+        format!("{COLUMN_PREFIX}rows")
+    } else {
+        "rows".to_string()
+    };
+    write_to(target, |w: &mut dyn Write| {
+        let mut out = csv::Writer::from_writer(w);
+        let mut header: Vec<&str> = key_columns.to_vec();
+        header.extend(added.iter().map(String::as_str));
+        header.push(&rows_column);
+        out.write_record(&header)?;
+        for (k, f) in matched.keys.iter().zip(fields) {
+            // Name, then state and year where the input has them.
+            let mut row: Vec<String> = vec![k.name.clone()];
+            if has_state {
+                row.push(k.state.clone());
+            }
+            if let Some(y) = k.year {
+                row.push(y.to_string());
+            }
+            row.extend(f.iter().cloned());
+            row.push(k.rows.to_string());
+            out.write_record(&row)?;
+        }
+        out.flush()?;
+        Ok(())
+    })
+}
+
+/// Runs the command: arguments -> checked configuration -> execute ->
+/// summary.
+pub fn run(args: Args, global: Global) -> Result<()> {
+    let config = configure(&args, global)?;
+    let report = execute(&config)?;
+    for w in &report.warnings {
+        warn(w);
+    }
+    summarize(global, &report);
     Ok(())
 }
 
-fn added_fields(r: &Resolution) -> [String; 7] {
-    let candidates: Vec<&str> = r.candidates.iter().map(|c| c.code.as_str()).collect();
-    [
-        r.code.clone().unwrap_or_default(),
-        r.name.clone().unwrap_or_default(),
-        r.status.as_str().to_string(),
-        r.method.map_or(String::new(), |m| m.as_str().to_string()),
-        fixed(r.score, 3),
-        r.note.clone(),
-        candidates.join(";"),
-    ]
-}
-
-/// Review rows: what the matcher could not settle, and what a decision
-/// settled (so a review file passed back as decisions keeps them). Review
-/// before unmatched, then most rows first, then input order.
-fn review_items(distinct: &[Distinct]) -> Vec<ReviewItem> {
-    let mut items: Vec<(Status, u64, usize, ReviewItem)> = Vec::new();
-    // With per-row vintages one (name, state) may need review in several
-    // vintages: it gets one review row (the first vintage's reason and
-    // candidates) covering all its rows, since a decision covers them all.
-    let mut seen: HashMap<(&str, &str), usize> = HashMap::new();
-    for (order, d) in distinct.iter().enumerate() {
-        let said = d.matcher.as_ref().unwrap_or(&d.resolution);
-        if said.status == Status::Matched && !d.decided {
-            continue;
-        }
-        if let Some(&i) = seen.get(&(d.name.as_str(), d.state.as_str())) {
-            items[i].1 += d.rows;
-            items[i].3.rows += d.rows;
-            continue;
-        }
-        seen.insert((d.name.as_str(), d.state.as_str()), items.len());
-        let chosen = if d.decided {
-            d.resolution
-                .code
-                .clone()
-                .unwrap_or_else(|| NONE.to_string())
-        } else {
-            String::new()
-        };
-        items.push((
-            said.status,
-            d.rows,
-            order,
-            ReviewItem {
-                name: d.name.clone(),
-                state: d.state.clone(),
-                status: said.status.as_str().to_string(),
-                rows: d.rows,
-                reason: said.note.clone(),
-                candidates: said.candidates.clone(),
-                chosen,
-            },
-        ));
-    }
-    items.sort_by(|a, b| a.0.cmp(&b.0).then(b.1.cmp(&a.1)).then(a.2.cmp(&b.2)));
-    items.into_iter().map(|x| x.3).collect()
-}
-
-fn summarize(
-    global: Global,
-    distinct: &[Distinct],
-    rows: usize,
-    decisions: usize,
-    review_written: bool,
-) {
-    let mut by_status: HashMap<Status, u64> = HashMap::new();
-    let mut by_method: std::collections::BTreeMap<Method, u64> = std::collections::BTreeMap::new();
-    // Counted by (name, state): with per-row vintages a name appears once
-    // per vintage in `distinct`.
-    let mut names: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
-    let mut open: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
-    let mut used: std::collections::HashSet<(&str, &str)> = std::collections::HashSet::new();
-    for d in distinct {
-        let key = (d.name.as_str(), d.state.as_str());
-        names.insert(key);
-        *by_status.entry(d.resolution.status).or_default() += d.rows;
-        if d.resolution.status == Status::Matched {
-            if let Some(m) = d.resolution.method {
-                *by_method.entry(m).or_default() += d.rows;
-            }
-        }
-        if d.resolution.status != Status::Matched && !d.decided {
-            open.insert(key);
-        }
-        if d.decided {
-            used.insert(key);
-        }
-    }
-    let (open, used) = (open.len(), used.len());
-    let n = |s| by_status.get(&s).copied().unwrap_or(0);
-    let methods: Vec<String> = by_method
+fn summarize(global: Global, report: &Report) {
+    let t = &report.tally;
+    let n = |s| t.by_status.get(&s).copied().unwrap_or(0);
+    let methods: Vec<String> = t
+        .by_method
         .iter()
         .map(|(m, c)| format!("{} {c}", m.as_str()))
         .collect();
     say(
         global,
         format!(
-            "regionkey match: {rows} rows, {} distinct names",
-            names.len()
+            "regionkey match: {} rows, {} distinct names",
+            t.rows, t.names
         ),
     );
     say(
@@ -613,13 +647,22 @@ fn summarize(
     );
     say(global, format!("  review    {}", n(Status::Review)));
     say(global, format!("  unmatched {}", n(Status::Unmatched)));
-    if decisions > 0 {
-        say(global, format!("  decisions used: {used} of {decisions}"));
-    }
-    if open > 0 && !review_written {
+    if t.decisions > 0 {
         say(
             global,
-            format!("  {open} distinct names need a decision; write them out with --review FILE"),
+            format!("  decisions used: {} of {}", t.decisions_used, t.decisions),
+        );
+    }
+    if let Some(k) = report.distinct_keys {
+        say(global, format!("  distinct keys written: {k}"));
+    }
+    if t.open > 0 && !report.review_written {
+        say(
+            global,
+            format!(
+                "  {} distinct names need a decision; write them out with --review FILE",
+                t.open
+            ),
         );
     }
 }

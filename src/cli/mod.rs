@@ -11,6 +11,7 @@ use crate::error::Error;
 pub mod apply;
 pub mod chain;
 pub mod demo;
+pub mod group;
 pub mod history;
 pub mod inspect;
 pub mod map;
@@ -59,6 +60,8 @@ pub enum Command {
     History(history::Args),
     /// Draw a map of which units of a layer a table joined to, and how fully.
     Map(map::Args),
+    /// Build crosswalks both ways between counties and groups of counties from a membership list.
+    Group(group::Args),
     /// Run the whole pipeline on built-in demo data.
     Demo(demo::Args),
 }
@@ -82,6 +85,7 @@ pub fn main() -> ExitCode {
         Command::Chain(a) => chain::run(a, global),
         Command::History(a) => history::run(a, global),
         Command::Map(a) => map::run(a, global),
+        Command::Group(a) => group::run(a, global),
         Command::Demo(a) => demo::run(a, global),
     };
     match result {

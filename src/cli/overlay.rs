@@ -14,7 +14,7 @@ use crate::error::{Error, Result};
 use crate::io::crosswalk_file::{
     is_parquet_path, sidecar_path, write_csv, write_parquet, write_sidecar, CAUTION, DECIMALS,
 };
-use crate::io::geo::{population, read_layer, Layer, LayerRequest};
+use crate::io::geo::{population, read_layer, Layer, LayerRequest, RepeatedKeys};
 use crate::io::output::{fixed, write_file, write_to, Target};
 use crate::io::progress::Progress;
 
@@ -25,6 +25,15 @@ pub enum WeightBy {
     Area,
     /// Share of the source's population, from --population.
     Population,
+}
+
+/// What to do with features that share a key.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Repeated {
+    /// Take them together as one unit, with a warning naming the key.
+    Merge,
+    /// Stop with an error naming the key and its features.
+    Refuse,
 }
 
 /// Arguments.
@@ -85,6 +94,10 @@ pub struct More {
     /// Weight pieces by area or by population.
     #[arg(long, value_enum, default_value_t = WeightBy::Area)]
     pub weight: WeightBy,
+    /// Several features of a layer with the same key: take them together
+    /// as one unit with a warning naming the key (merge), or stop (refuse).
+    #[arg(long, value_enum, value_name = "WHAT", default_value_t = Repeated::Merge)]
+    pub repeated_keys: Repeated,
     /// Population layer: CSV with lon, lat and a count column; GeoJSON
     /// points; or a polygon layer whose counts are spread by area.
     #[arg(long, value_name = "LAYER")]
@@ -188,6 +201,15 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     let config = check(&args)?;
     let from = read_layer(&config.from)?;
     let to = read_layer(&config.to)?;
+    let repeated = match args.more.repeated_keys {
+        Repeated::Merge => RepeatedKeys::Merge,
+        Repeated::Refuse => RepeatedKeys::Refuse,
+    };
+    for layer in [&from, &to] {
+        for note in layer.notes(repeated, Some("--repeated-keys"))? {
+            super::warn(note);
+        }
+    }
     let (weighting, pop_sha) = match &config.population {
         Some((spec, field)) => {
             let (layer, sha) = population::read(spec, field)?;

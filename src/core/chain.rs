@@ -191,6 +191,62 @@ pub fn compose(first: &Crosswalk, second: &Crosswalk) -> Result<Crosswalk, Chain
     Ok(composed)
 }
 
+/// What the sliver rule removed from one source.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trimmed {
+    /// The source.
+    pub from_code: String,
+    /// Pieces dropped.
+    pub pieces: usize,
+    /// The source's share they held, before renormalizing.
+    pub share: f64,
+}
+
+/// The overlay's sliver rule, for a composed crosswalk: a piece below
+/// `min_share` of its source and (when known) of its target is dropped, and
+/// the source's remaining weights (its uncovered row included) are scaled
+/// back up to one. Composition multiplies small shares into many tiny
+/// pairs along generalized boundaries; this removes them as the overlay
+/// does. Returns what was dropped, by source.
+pub fn drop_slivers(crosswalk: &mut Crosswalk, min_share: f64) -> Vec<Trimmed> {
+    let mut out = Vec::new();
+    if min_share <= 0.0 {
+        return out;
+    }
+    let rows = std::mem::take(&mut crosswalk.rows);
+    let mut by_source: BTreeMap<String, Vec<CrosswalkRow>> = BTreeMap::new();
+    for r in rows {
+        by_source.entry(r.from_code.clone()).or_default().push(r);
+    }
+    for (code, mut rows) in by_source {
+        let before = rows.len();
+        let mut dropped = 0.0;
+        rows.retain(|r| {
+            let sliver = r.weight < min_share && r.target_share.is_none_or(|v| v < min_share);
+            if sliver {
+                dropped += r.weight;
+            }
+            !sliver
+        });
+        let kept: f64 = rows.iter().map(|r| r.weight).sum();
+        if before > rows.len() {
+            out.push(Trimmed {
+                from_code: code,
+                pieces: before - rows.len(),
+                share: dropped,
+            });
+            if kept > 0.0 {
+                for r in rows.iter_mut() {
+                    r.weight /= kept;
+                }
+            }
+        }
+        crosswalk.rows.extend(rows);
+    }
+    crosswalk.sort();
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -360,5 +416,26 @@ mod tests {
             check("first", &dup),
             Err(ChainError::Duplicate { .. })
         ));
+    }
+
+    #[test]
+    fn slivers_of_a_composed_crosswalk_are_dropped_and_the_source_renormalized() {
+        let mut cw = Crosswalk {
+            rows: vec![
+                row("A", Some("P"), 0.9995, Some(0.5)),
+                // A sliver of A that is also a sliver of Q.
+                row("A", Some("Q"), 0.0005, Some(0.0002)),
+                // Small for B, but a large part of its target: kept.
+                row("B", Some("R"), 0.0005, Some(0.9)),
+                row("B", Some("P"), 0.9995, Some(0.5)),
+            ],
+        };
+        let trimmed = drop_slivers(&mut cw, 1e-3);
+        assert_eq!(trimmed.len(), 1);
+        assert_eq!((trimmed[0].from_code.as_str(), trimmed[0].pieces), ("A", 1));
+        assert!((trimmed[0].share - 0.0005).abs() < 1e-15);
+        assert_eq!(cw.rows.len(), 3);
+        assert_eq!(find(&cw, "A", Some("P")).weight, 1.0);
+        assert!(check("chained", &cw).is_ok());
     }
 }

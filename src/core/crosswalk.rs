@@ -134,6 +134,8 @@ fn digit_length<'a>(codes: impl Iterator<Item = &'a str>) -> Option<usize> {
 
 use std::collections::{BTreeMap, BTreeSet};
 
+use crate::core::fips::{CodeForm, Repairs};
+
 impl Crosswalk {
     /// Checks the crosswalk: weights and target shares within 0..=1; no
     /// (source, target) pair twice; codes well-formed (not empty, no white
@@ -275,6 +277,57 @@ impl Crosswalk {
     }
 }
 
+/// A code of a crosswalk that reading normalized ("2201" -> "02201").
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct CodeRepair {
+    /// 0-based row index.
+    pub row: usize,
+    /// `from_code` or `to_code`.
+    pub side: &'static str,
+    /// The code as written.
+    pub written: String,
+    /// The code as read.
+    pub code: String,
+    /// What was repaired.
+    pub repairs: Repairs,
+}
+
+impl Crosswalk {
+    /// Normalizes the codes of each side through the one code parser: the
+    /// form of each column is detected from its codes ([`CodeForm::detect`]),
+    /// then every code is read in that form, so a code that lost its
+    /// leading zero ("2201" among five-digit codes) or came from a
+    /// spreadsheet ("6037.0") gets the form of its column. Returns the
+    /// forms of the two sides and each code that changed, so a command can
+    /// report them. Detection guarantees every code of the side reads; a
+    /// code that did not would be kept as written.
+    pub fn normalize_codes(&mut self) -> (CodeForm, CodeForm, Vec<CodeRepair>) {
+        let from_form = CodeForm::detect(self.rows.iter().map(|r| r.from_code.as_str()));
+        let to_form = CodeForm::detect(self.rows.iter().filter_map(|r| r.to_code.as_deref()));
+        let mut repaired = Vec::new();
+        for (i, r) in self.rows.iter_mut().enumerate() {
+            for (side, form, code) in [
+                ("from_code", from_form, Some(&mut r.from_code)),
+                ("to_code", to_form, r.to_code.as_mut()),
+            ] {
+                let Some(code) = code else { continue };
+                if let Ok((c, repairs)) = form.read(code) {
+                    if c.as_str() != code.as_str() {
+                        repaired.push(CodeRepair {
+                            row: i,
+                            side,
+                            written: std::mem::replace(code, c.into_string()),
+                            code: code.clone(),
+                            repairs,
+                        });
+                    }
+                }
+            }
+        }
+        (from_form, to_form, repaired)
+    }
+}
+
 /// The shape of a crosswalk.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Summary {
@@ -381,5 +434,29 @@ mod tests {
         assert_eq!(s.entirely_uncovered, 1);
         assert_eq!(s.largest_changes.len(), 1);
         assert!((s.largest_changes[0].0 - 0.25).abs() < 1e-12);
+    }
+
+    #[test]
+    fn codes_that_lost_their_leading_zero_are_normalized_and_listed() {
+        // Integer keys: 2201 is Alaska's Prince of Wales-Outer Ketchikan
+        // (02201) as an integer column writes it.
+        let mut cw = Crosswalk {
+            rows: vec![
+                row("2201", Some("2198"), 1.0),
+                row("06037", Some("6037.0"), 1.0),
+                row("36061", Some("36061"), 1.0),
+                row("48201", Some("48201"), 1.0),
+                row("51600", Some("51600"), 1.0),
+            ],
+        };
+        let (from, to, repaired) = cw.normalize_codes();
+        assert_eq!((from, to), (CodeForm::County, CodeForm::County));
+        assert_eq!(cw.rows[0].from_code, "02201");
+        assert_eq!(cw.rows[0].to_code.as_deref(), Some("02198"));
+        assert_eq!(cw.rows[1].to_code.as_deref(), Some("06037"));
+        assert_eq!(repaired.len(), 3);
+        assert_eq!(repaired[0].written, "2201");
+        assert!(repaired[0].repairs.leading_zeros);
+        assert!(repaired[2].repairs.float_tail);
     }
 }

@@ -97,6 +97,10 @@ pub enum Method {
     Code,
     /// A decision from the user's decisions file.
     Decision,
+    /// A name made of several units ("Dukes and Nantucket", "New York
+    /// City"); the code is the members' codes joined by `+`
+    /// (see [`crate::core::composite`]).
+    Composite,
 }
 
 impl Method {
@@ -110,6 +114,7 @@ impl Method {
             Method::History => "history",
             Method::Code => "code",
             Method::Decision => "decision",
+            Method::Composite => "composite",
         }
     }
 }

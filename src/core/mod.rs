@@ -3,10 +3,14 @@
 
 pub mod allocate;
 pub mod chain;
+pub mod composite;
 pub mod crosswalk;
+pub mod decisions;
 pub mod fips;
 pub mod geodesy;
+pub mod group;
 pub mod history;
+pub mod match_table;
 pub mod matcher;
 pub mod normalize;
 pub mod overlay;

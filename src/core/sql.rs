@@ -100,6 +100,9 @@ pub enum CodeForm {
     County,
     /// Two-digit state FIPS codes, likewise.
     State,
+    /// All-digit codes of this width (tract or block-group GEOIDs, ...),
+    /// likewise.
+    Digits(usize),
     /// Any other code: trimmed only.
     Text,
 }
@@ -161,6 +164,11 @@ pub struct Query {
     pub variables: Vec<Variable>,
     /// Figures whose coverage is below this are `NULL` (0 keeps all).
     pub min_coverage: f64,
+    /// Output column names, as the command writes them: the code column,
+    /// the period column (with `period_column`), then per variable its
+    /// value, its coverage and, for a mean, its weighting. Empty: the
+    /// names of [`Query::default_columns`].
+    pub columns: Vec<String>,
 }
 
 /// Writes a number as a SQL literal that reads back exactly.
@@ -228,6 +236,7 @@ impl Query {
             }
             (CodeForm::County, None) => self.padded(&code, 5),
             (CodeForm::State, _) => self.padded(&code, 2),
+            (CodeForm::Digits(w), _) => self.padded(&code, w),
             (CodeForm::Text, _) => self.text(&code),
         }
     }
@@ -313,8 +322,31 @@ impl Query {
         out
     }
 
+    /// The output names used when [`Query::columns`] is empty: the code and
+    /// period columns' own names, then `NAME`, `NAME_coverage` and
+    /// `NAME_weighting` (for a mean).
+    pub fn default_columns(&self) -> Vec<String> {
+        let mut out = vec![self.code_column.clone()];
+        out.extend(self.period_column.clone());
+        for v in &self.variables {
+            out.push(v.name().to_string());
+            out.push(format!("{}_coverage", v.name()));
+            if matches!(v, Variable::Mean { .. }) {
+                out.push(format!("{}_weighting", v.name()));
+            }
+        }
+        out
+    }
+
     /// The query.
     pub fn render(&self) -> String {
+        let output = if self.columns.is_empty() {
+            self.default_columns()
+        } else {
+            self.columns.clone()
+        };
+        let mut output = output.into_iter();
+        let mut out_name = || output.next().unwrap_or_default();
         let columns = self.value_columns();
         let parts = self.contributions(&columns);
         let mut s = String::new();
@@ -461,9 +493,13 @@ impl Query {
         );
         let _ = writeln!(s, ")");
         // The result, as the command writes it.
-        let _ = write!(s, "SELECT target AS {}", self.q("code"));
+        let code_name = out_name();
+        let _ = write!(s, "SELECT target AS {}", self.q(&code_name));
+        let mut order = vec![self.q(&code_name)];
         if self.period_column.is_some() {
-            let _ = write!(s, ", period AS {}", self.q("period"));
+            let period_name = out_name();
+            let _ = write!(s, ", period AS {}", self.q(&period_name));
+            order.push(self.q(&period_name));
         }
         let _ = writeln!(s);
         let min = literal(self.min_coverage);
@@ -472,28 +508,24 @@ impl Query {
                 Variable::Count(_) => format!("n{k}"),
                 _ => format!("CASE WHEN d{k} <> 0 THEN n{k} / d{k} END"),
             };
-            let name = var.name();
+            let (name, coverage) = (out_name(), out_name());
             let _ = writeln!(
                 s,
                 "  , CASE WHEN known{k} = 1 AND c{k} >= {min} THEN {value} END AS {}, c{k} AS {}",
-                self.q(name),
-                self.q(&format!("{name}_coverage"))
+                self.q(&name),
+                self.q(&coverage)
             );
             if let Variable::Mean { weight, .. } = var {
                 let _ = writeln!(
                     s,
                     "  , {} AS {}",
                     string(weight.as_deref().unwrap_or("target_share")),
-                    self.q(&format!("{name}_weighting"))
+                    self.q(&out_name())
                 );
             }
         }
         let _ = writeln!(s, "FROM covered");
-        let _ = write!(s, "ORDER BY {}", self.q("code"));
-        if self.period_column.is_some() {
-            let _ = write!(s, ", {}", self.q("period"));
-        }
-        let _ = writeln!(s, ";");
+        let _ = writeln!(s, "ORDER BY {};", order.join(", "));
         s
     }
 }
@@ -525,6 +557,7 @@ mod tests {
                 },
             ],
             min_coverage: 0.5,
+            columns: Vec::new(),
         }
     }
 

@@ -4,9 +4,10 @@
 use std::io::Write;
 use std::path::Path;
 
-use crate::core::crosswalk::{Crosswalk, CrosswalkRow};
+use crate::core::crosswalk::{CodeRepair, Crosswalk, CrosswalkRow};
+use crate::core::fips::CodeForm;
 use crate::error::{Error, Location, Result};
-use crate::io::output::fixed;
+use crate::io::output::{fixed, write_csv_record};
 use crate::io::table::{read_table, read_table_bytes, ReadOptions};
 
 /// The column names of a crosswalk file, in order.
@@ -17,39 +18,74 @@ pub const DECIMALS: usize = 12;
 
 /// Writes a crosswalk as CSV (rows as given; call [`Crosswalk::sort`] first).
 pub fn write_csv(w: &mut dyn Write, crosswalk: &Crosswalk) -> std::io::Result<()> {
-    writeln!(w, "{}", COLUMNS.join(","))?;
+    write_csv_record(w, &COLUMNS)?;
     for r in &crosswalk.rows {
-        writeln!(
+        write_csv_record(
             w,
-            "{},{},{},{},{}",
-            r.from_code,
-            r.to_code.as_deref().unwrap_or(""),
-            fixed(r.weight, DECIMALS),
-            r.target_share.map_or(String::new(), |s| fixed(s, DECIMALS)),
-            r.basis.as_str()
+            &[
+                r.from_code.as_str(),
+                r.to_code.as_deref().unwrap_or(""),
+                &fixed(r.weight, DECIMALS),
+                &r.target_share.map_or(String::new(), |s| fixed(s, DECIMALS)),
+                r.basis.as_str(),
+            ],
         )?;
     }
     Ok(())
 }
 
-/// Reads a crosswalk CSV. Structural problems (missing column, a weight that
-/// is not a number, an unknown basis) are errors naming line and column.
+/// A crosswalk as read from a file, with where each row was and which codes
+/// reading normalized.
+#[derive(Debug, Clone)]
+pub struct CrosswalkFile {
+    /// The rows, codes normalized.
+    pub crosswalk: Crosswalk,
+    /// The line of each row in the file (the header is line 1).
+    pub lines: Vec<u64>,
+    /// The form of the source and of the target codes.
+    pub forms: (CodeForm, CodeForm),
+    /// Codes that were not written in their column's form ("2201" among
+    /// five-digit codes), as read.
+    pub repairs: Vec<CodeRepair>,
+}
+
+/// Reads a crosswalk CSV (or Parquet). Structural problems (missing column,
+/// a weight that is not a number, an unknown basis) are errors naming line
+/// and column. Codes are read through the one code parser, so a code that
+/// lost its leading zero is restored (see [`read_file`] to learn which).
 pub fn read_csv(path: &Path) -> Result<Crosswalk> {
+    read_file(path).map(|f| f.crosswalk)
+}
+
+/// Reads a crosswalk file and notes which codes were normalized.
+pub fn read_file(path: &Path) -> Result<CrosswalkFile> {
     from_table(read_table(path, ReadOptions::default())?)
 }
 
 /// Reads a crosswalk CSV held in memory (an embedded file); `label` names it
 /// in messages.
 pub fn read_csv_bytes(label: &Path, bytes: &[u8]) -> Result<Crosswalk> {
-    from_table(read_table_bytes(label, bytes, ReadOptions::default())?)
+    from_table(read_table_bytes(label, bytes, ReadOptions::default())?).map(|f| f.crosswalk)
 }
 
-fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
+fn from_table(table: crate::io::table::Table) -> Result<CrosswalkFile> {
     let path = table.path.clone();
     let path = path.as_path();
     let cols: Vec<usize> = COLUMNS[..3]
         .iter()
-        .map(|c| table.column(c))
+        .map(|c| {
+            table.column(c).map_err(|_| {
+                Error::input(
+                    Location::file(path).in_column(*c),
+                    format!(
+                        "not a crosswalk: no column {c:?} (the columns are: {}); a crosswalk has \
+                         the columns from_code, to_code and weight, and may have target_share \
+                         and basis",
+                        table.headers.join(", ")
+                    ),
+                )
+            })
+        })
         .collect::<Result<_>>()?;
     let share = table.column("target_share").ok();
     let basis = table.column("basis").ok();
@@ -60,13 +96,23 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
             t.parse::<f64>()
                 .ok()
                 .filter(|v| v.is_finite())
-                .ok_or_else(|| Error::input(table.location(i, c), format!("{t:?} is not a number")))
+                .ok_or_else(|| {
+                    Error::input(
+                        table.location(i, c),
+                        format!(
+                            "{t:?} is not a number; {} is a share written as a decimal number \
+                             (0.25 for a quarter)",
+                            table.headers[c]
+                        ),
+                    )
+                })
         };
         let from = r[cols[0]].trim();
         if from.is_empty() {
             return Err(Error::input(
                 table.location(i, cols[0]),
-                "empty source code",
+                "the source code is empty; every row needs a from_code (an empty to_code is \
+                 the share outside every target)",
             ));
         }
         let to = r[cols[1]].trim();
@@ -90,10 +136,17 @@ fn from_table(table: crate::io::table::Table) -> Result<Crosswalk> {
     if rows.is_empty() {
         return Err(Error::input(
             Location::file(path),
-            "the crosswalk has no rows",
+            "the crosswalk has a header but no rows",
         ));
     }
-    Ok(Crosswalk { rows })
+    let mut crosswalk = Crosswalk { rows };
+    let (from_form, to_form, repairs) = crosswalk.normalize_codes();
+    Ok(CrosswalkFile {
+        crosswalk,
+        lines: table.lines.clone(),
+        forms: (from_form, to_form),
+        repairs,
+    })
 }
 
 /// Writes a crosswalk as Parquet: the same columns, codes as text, weights
@@ -126,18 +179,7 @@ pub fn is_parquet_path(path: &Path) -> bool {
         .is_some_and(|e| e.eq_ignore_ascii_case("parquet"))
 }
 
-/// The sidecar metadata path: the crosswalk path with `.json` appended.
-pub fn sidecar_path(path: &Path) -> std::path::PathBuf {
-    let mut s = path.as_os_str().to_owned();
-    s.push(".json");
-    s.into()
-}
-
-/// The caution carried in every sidecar.
-pub const CAUTION: &str =
-    "Figures allocated with this crosswalk are estimates: they assume a value \
-is spread evenly (by area or by population) within each source unit. For legal or funding uses, \
-official relationship files and local practice prevail.";
+pub use crate::io::output::{sidecar_path, CAUTION};
 
 /// Writes sidecar metadata (a JSON value) with sorted keys and a final
 /// newline, so the bytes are stable.

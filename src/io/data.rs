@@ -18,7 +18,8 @@ use rayon::prelude::*;
 
 use crate::core::allocate::{Allocation, Plan, SourceValues};
 use crate::error::{Error, Location, Result};
-use crate::io::output::fixed;
+pub use crate::io::output::{csv_field, sha256_file};
+use crate::io::output::{fixed, NumberFormat};
 use crate::io::table::{detect_delimiter, is_parquet};
 use std::ops::Range;
 
@@ -492,11 +493,12 @@ impl DataTable {
             cells.push(cell as u32);
         }
         // Column by column, in parallel; within a column, rows in order.
-        let by_column: Vec<Vec<f64>> = self
+        let by_column: Vec<(Vec<f64>, f64, f64)> = self
             .values
             .par_iter()
             .map(|ca| {
                 let mut sums = vec![f64::NAN; periods * sources];
+                let (mut total, mut left_out) = (0.0, 0.0);
                 // Array by array: the values as a slice, nulls from the bitmap.
                 let mut row = 0;
                 for array in ca.downcast_iter() {
@@ -504,7 +506,12 @@ impl DataTable {
                     let cells = &cells[row..row + values.len()];
                     let validity = array.validity().filter(|b| b.unset_bits() > 0);
                     for (j, (&v, &cell)) in values.iter().zip(cells).enumerate() {
-                        if cell == NONE || validity.is_some_and(|b| !b.get_bit(j)) {
+                        if validity.is_some_and(|b| !b.get_bit(j)) {
+                            continue;
+                        }
+                        total += v;
+                        if cell == NONE {
+                            left_out += v;
                             continue;
                         }
                         let x = &mut sums[cell as usize];
@@ -512,15 +519,20 @@ impl DataTable {
                     }
                     row += values.len();
                 }
-                sums
+                (sums, total, left_out)
             })
             .collect();
+        let totals = by_column.iter().map(|c| c.1).collect();
+        let left_out = by_column.iter().map(|c| c.2).collect();
+        let by_column: Vec<Vec<f64>> = by_column.into_iter().map(|c| c.0).collect();
         let values = SourceValues::from_period_major(periods, sources, &by_column);
         Folded {
             values,
             rows,
             first_row: first,
             sources,
+            totals,
+            left_out,
         }
     }
 }
@@ -534,6 +546,11 @@ pub struct Folded {
     /// Index of each cell's first row.
     pub first_row: Vec<u32>,
     sources: usize,
+    /// Per value column: the sum of every known value of the table.
+    pub totals: Vec<f64>,
+    /// Per value column: the sum of the known values of rows that reach no
+    /// source (no code, no period, or a code the plan does not know).
+    pub left_out: Vec<f64>,
 }
 
 impl Folded {
@@ -547,17 +564,21 @@ impl Folded {
 /// How results are written.
 #[derive(Debug, Clone)]
 pub struct ResultLayout {
-    /// Output names, one per measure.
-    pub names: Vec<String>,
+    /// The header: code, code name (if `target_names`), period (if
+    /// `with_period`), then per measure its value, its coverage and its
+    /// note column (if any).
+    pub header: Vec<String>,
     /// Extra constant columns after a measure's coverage (e.g. a mean's
-    /// `_weighting`), by measure index: (column name, value).
-    pub notes: Vec<Option<(String, String)>>,
+    /// `_weighting`), by measure index: the value written.
+    pub notes: Vec<Option<String>>,
     /// Whether to write a period column.
     pub with_period: bool,
     /// Names of target codes (a `code_name` column), if known.
     pub target_names: Option<Vec<String>>,
-    /// Decimals for values.
-    pub decimals: usize,
+    /// How values are written.
+    pub numbers: NumberFormat,
+    /// Field delimiter of the text output (`,` or tab).
+    pub delimiter: u8,
 }
 
 /// Decimals for coverage.
@@ -576,28 +597,16 @@ pub fn write_results(
     seen: &mut dyn FnMut(&Allocation),
     layout: &ResultLayout,
 ) -> std::io::Result<()> {
-    let mut header = vec!["code".to_string()];
-    if layout.target_names.is_some() {
-        header.push("code_name".into());
-    }
-    if layout.with_period {
-        header.push("period".into());
-    }
-    for (m, name) in layout.names.iter().enumerate() {
-        header.push(name.clone());
-        header.push(format!("{name}_coverage"));
-        if let Some((col, _)) = &layout.notes[m] {
-            header.push(col.clone());
-        }
-    }
+    let d = layout.delimiter;
     writeln!(
         w,
         "{}",
-        header
+        layout
+            .header
             .iter()
-            .map(|h| csv_field(h))
+            .map(|h| field(h, d))
             .collect::<Vec<_>>()
-            .join(",")
+            .join(std::str::from_utf8(&[d]).unwrap_or(","))
     )?;
     let targets = plan.targets.len();
     // A few targets per buffer, a few buffers per batch: bounded memory,
@@ -609,7 +618,7 @@ pub fn write_results(
         .map(|c| c * chunk..((c + CHUNK_PER_BATCH) * chunk).min(targets))
         .collect();
     let period_fields: Vec<std::borrow::Cow<'_, str>> =
-        periods.iter().map(|p| csv_field(p)).collect();
+        periods.iter().map(|p| field(p, d)).collect();
     // Batches are allocated and formatted on another thread (lines in
     // parallel) while this one writes the previous batch; the buffers go
     // back and forth, so they are allocated once.
@@ -657,6 +666,56 @@ pub fn write_results(
     })
 }
 
+/// Writes the results as Parquet: the same columns and rows as the text
+/// output, codes and periods as text, values and coverage as 64-bit floats
+/// (an empty estimate as null).
+pub fn write_results_parquet(
+    w: &mut dyn Write,
+    plan: &Plan,
+    periods: &[String],
+    allocation: &Allocation,
+    layout: &ResultLayout,
+) -> std::io::Result<()> {
+    let rows = plan.targets.len() * periods.len();
+    let mut columns: Vec<Column> = Vec::new();
+    let mut names = layout.header.iter();
+    let mut name = || PlSmallStr::from(names.next().map_or("", |s| s.as_str()));
+    let each = |f: &dyn Fn(usize, usize) -> String| -> Vec<String> {
+        (0..plan.targets.len())
+            .flat_map(|t| (0..periods.len()).map(move |p| (t, p)))
+            .map(|(t, p)| f(t, p))
+            .collect()
+    };
+    columns.push(Column::new(name(), each(&|t, _| plan.targets[t].clone())));
+    if let Some(n) = &layout.target_names {
+        columns.push(Column::new(name(), each(&|t, _| n[t].clone())));
+    }
+    if layout.with_period {
+        columns.push(Column::new(name(), each(&|_, p| periods[p].clone())));
+    }
+    for (m, note) in layout.notes.iter().enumerate() {
+        let mut values: Vec<Option<f64>> = Vec::with_capacity(rows);
+        let mut coverage: Vec<f64> = Vec::with_capacity(rows);
+        for t in 0..plan.targets.len() {
+            for p in 0..periods.len() {
+                let e = allocation.get(t, p, m);
+                values.push(e.value);
+                coverage.push(e.coverage);
+            }
+        }
+        columns.push(Column::new(name(), values));
+        columns.push(Column::new(name(), coverage));
+        if let Some(note) = note {
+            columns.push(Column::new(name(), vec![note.clone(); rows]));
+        }
+    }
+    let mut df = DataFrame::new_infer_height(columns).map_err(std::io::Error::other)?;
+    ParquetWriter::new(w)
+        .finish(&mut df)
+        .map_err(std::io::Error::other)?;
+    Ok(())
+}
+
 /// Formats the result lines of targets `range` (all periods) into `buf`.
 fn format_targets(
     buf: &mut Vec<u8>,
@@ -666,34 +725,64 @@ fn format_targets(
     range: Range<usize>,
     layout: &ResultLayout,
 ) {
+    let d = layout.delimiter;
     for t in range {
-        let code = csv_field(&plan.targets[t]);
-        let name = layout.target_names.as_ref().map(|n| csv_field(&n[t]));
+        let code = field(&plan.targets[t], d);
+        let name = layout.target_names.as_ref().map(|n| field(&n[t], d));
         for (p, period) in period_fields.iter().enumerate() {
             buf.extend_from_slice(code.as_bytes());
             if let Some(n) = &name {
-                buf.push(b',');
+                buf.push(d);
                 buf.extend_from_slice(n.as_bytes());
             }
             if layout.with_period {
-                buf.push(b',');
+                buf.push(d);
                 buf.extend_from_slice(period.as_bytes());
             }
             for (m, e) in allocation.row(t, p).iter().enumerate() {
-                buf.push(b',');
+                buf.push(d);
                 if let Some(v) = e.value {
-                    push_fixed(buf, v, layout.decimals);
+                    match layout.numbers {
+                        NumberFormat::Significant(digits) => push_significant(buf, v, digits),
+                        NumberFormat::Fixed(decimals) => push_fixed(buf, v, decimals),
+                    }
                 }
-                buf.push(b',');
+                buf.push(d);
                 push_fixed(buf, e.coverage, COVERAGE_DECIMALS);
-                if let Some((_, note)) = &layout.notes[m] {
-                    buf.push(b',');
-                    buf.extend_from_slice(csv_field(note).as_bytes());
+                if let Some(note) = &layout.notes[m] {
+                    buf.push(d);
+                    buf.extend_from_slice(field(note, d).as_bytes());
                 }
             }
             buf.push(b'\n');
         }
     }
+}
+
+/// A field quoted for the output's delimiter: the one CSV rule, and for a
+/// tab-separated output also a field holding a tab.
+fn field(text: &str, delimiter: u8) -> std::borrow::Cow<'_, str> {
+    if delimiter == b'\t' && text.contains('\t') && !text.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", text).into()
+    } else {
+        csv_field(text)
+    }
+}
+
+/// Appends `value` with at most `digits` significant digits, the same
+/// bytes as [`NumberFormat::Significant`] writes.
+fn push_significant(buf: &mut Vec<u8>, value: f64, digits: usize) {
+    // Whole numbers (most counts) through the integer printer.
+    if digits >= 15 && value.fract() == 0.0 && value.abs() < 1e15 {
+        let n = value as i64;
+        if n == 0 {
+            buf.push(b'0');
+        } else {
+            push_scaled::<0>(buf, n);
+        }
+        return;
+    }
+    buf.extend_from_slice(NumberFormat::Significant(digits).format(value).as_bytes());
 }
 
 /// Appends `value` with a fixed number of decimals, the same bytes as
@@ -803,40 +892,9 @@ fn push_scaled<const D: usize>(buf: &mut Vec<u8>, n: i64) {
     buf.truncate(start + len);
 }
 
-/// Quotes a field if it needs it.
-pub fn csv_field(text: &str) -> std::borrow::Cow<'_, str> {
-    if text.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", text.replace('"', "\"\"")).into()
-    } else {
-        text.into()
-    }
-}
-
 /// Writes `value` as the report writes a number: fixed, or empty.
 pub fn number_or_empty(value: Option<f64>, decimals: usize) -> String {
     value.map_or(String::new(), |v| fixed(v, decimals))
-}
-
-/// SHA-256 of a file, as lowercase hex.
-pub fn sha256_file(path: &Path) -> Result<String> {
-    use sha2::{Digest, Sha256};
-    let mut file =
-        std::fs::File::open(path).map_err(|e| Error::io(path, "cannot open input", e))?;
-    let mut hasher = Sha256::new();
-    let mut buf = vec![0u8; 1 << 20];
-    loop {
-        let n = std::io::Read::read(&mut file, &mut buf)
-            .map_err(|e| Error::io(path, "cannot read", e))?;
-        if n == 0 {
-            break;
-        }
-        hasher.update(&buf[..n]);
-    }
-    Ok(hasher
-        .finalize()
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect())
 }
 
 #[cfg(test)]
@@ -863,6 +921,15 @@ mod tests {
 
     proptest::proptest! {
         #[test]
+        fn significant_digits_in_a_buffer_match_the_shared_formatter(
+            v in proptest::prop_oneof![-1.0e15f64..1.0e15, -1.0f64..1.0, proptest::strategy::Strategy::prop_map(-1000i64..1000, |n| n as f64)],
+        ) {
+            let mut buf = Vec::new();
+            push_significant(&mut buf, v, 15);
+            proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), NumberFormat::default().format(v));
+        }
+
+        #[test]
         fn the_fast_path_writes_what_the_exact_formatter_writes(v in -1.0e7f64..1.0e7, d in 0usize..10) {
             let mut buf = Vec::new();
             push_fixed(&mut buf, v, d);
@@ -878,12 +945,5 @@ mod tests {
             push_fixed(&mut buf, v, d);
             proptest::prop_assert_eq!(String::from_utf8(buf).unwrap(), format!("x{}", fixed(v, d)));
         }
-    }
-
-    #[test]
-    fn fields_with_commas_or_quotes_are_quoted() {
-        assert_eq!(csv_field("a,b"), "\"a,b\"");
-        assert_eq!(csv_field("say \"hi\""), "\"say \"\"hi\"\"\"");
-        assert_eq!(csv_field("plain"), "plain");
     }
 }

@@ -2,6 +2,7 @@
 //! output, or the terminal lives here; the computation lives in [`crate::core`].
 
 pub mod builtin;
+pub mod composites;
 pub mod crosswalk_file;
 pub mod data;
 pub mod geo;

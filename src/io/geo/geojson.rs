@@ -3,14 +3,20 @@
 use std::collections::BTreeSet;
 use std::path::Path;
 
+use geo::Coord;
 use serde_json::Value;
 
-use super::{json_ring, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use super::{check_coord, key_text, raw_features, resolve_keys, Layer, LayerRequest};
 use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
-/// Reads a parsed FeatureCollection.
+/// Reads a parsed FeatureCollection. A panic inside (a bug) is turned into
+/// an error naming the file as a last guard.
 pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
+    super::guarded(path, || read_unguarded(path, doc, sha256, req))
+}
+
+fn read_unguarded(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
     check_crs(path, doc)?;
     let features = doc
         .get("features")
@@ -26,6 +32,12 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
     let mut polygons = Vec::with_capacity(features.len());
     for (i, f) in features.iter().enumerate() {
         let n = i as u64 + 1;
+        if !f.is_object() {
+            return Err(Error::input(
+                Location::file(path).at_feature(n),
+                "the feature is not a JSON object",
+            ));
+        }
         if let Some(p) = f.get("properties").and_then(Value::as_object) {
             fields.extend(p.keys().cloned());
         }
@@ -37,7 +49,8 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
         )?);
     }
     let fields: Vec<String> = fields.into_iter().collect();
-    let (keys, key) = resolve_keys(path, req, &fields, &ids, |i, field| {
+    let numbers: Vec<u64> = (1..=features.len() as u64).collect();
+    let (keys, key) = resolve_keys(path, req, &fields, &ids, &numbers, |i, field| {
         features[i]
             .get("properties")
             .and_then(|p| p.get(field))
@@ -53,6 +66,7 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
         fields,
         features,
         convention: RingConvention::ExteriorCounterClockwise,
+        warnings: Vec::new(),
     })
 }
 
@@ -81,40 +95,99 @@ fn check_crs(path: &Path, doc: &Value) -> Result<()> {
     Ok(())
 }
 
+/// Parses a JSON position list into a ring, checking each coordinate;
+/// `place` says which polygon and ring it is, for messages.
+fn json_ring(path: &Path, feature: u64, place: &str, v: &Value) -> Result<Ring> {
+    let at = || {
+        Location::file(path)
+            .at_feature(feature)
+            .in_column("geometry")
+    };
+    let arr = v.as_array().ok_or_else(|| {
+        Error::input(
+            at(),
+            format!("{place} is not a list of [longitude, latitude] positions"),
+        )
+    })?;
+    let mut ring = Vec::with_capacity(arr.len());
+    for (k, p) in arr.iter().enumerate() {
+        let pair = p.as_array().and_then(|p| {
+            Some((
+                p.first().and_then(Value::as_f64)?,
+                p.get(1).and_then(Value::as_f64)?,
+            ))
+        });
+        let Some((x, y)) = pair else {
+            return Err(Error::input(
+                at(),
+                format!(
+                    "{place}, position {}: {} is not a [longitude, latitude] pair of numbers",
+                    k + 1,
+                    short(p)
+                ),
+            ));
+        };
+        let c = Coord { x, y };
+        check_coord(at(), &format!("{place}, position {}", k + 1), c)?;
+        ring.push(c);
+    }
+    Ok(ring)
+}
+
+/// A JSON value for a message, cut to 40 characters.
+fn short(v: &Value) -> String {
+    let s = v.to_string();
+    if s.chars().count() > 40 {
+        format!("{}...", s.chars().take(40).collect::<String>())
+    } else {
+        s
+    }
+}
+
 fn geometry_polygons(path: &Path, n: u64, g: &Value) -> Result<Vec<Vec<Ring>>> {
     if g.is_null() {
         return Ok(Vec::new());
     }
+    let at = || Location::file(path).at_feature(n).in_column("geometry");
     let kind = g.get("type").and_then(Value::as_str).unwrap_or("");
     let coords = g.get("coordinates").unwrap_or(&Value::Null);
-    let rings = |v: &Value| -> Result<Vec<Ring>> {
+    let rings = |v: &Value, polygon: Option<usize>| -> Result<Vec<Ring>> {
+        let name = |r: usize| match polygon {
+            Some(p) => format!("polygon {p}, ring {r}"),
+            None => format!("ring {r}"),
+        };
         v.as_array()
             .ok_or_else(|| {
                 Error::input(
-                    Location::file(path).at_line(n),
-                    format!("feature {n}: a polygon is not a list of rings"),
+                    at(),
+                    match polygon {
+                        Some(p) => format!("polygon {p} is not a list of rings"),
+                        None => "the polygon is not a list of rings".to_string(),
+                    },
                 )
             })?
             .iter()
-            .map(|r| json_ring(path, n, r))
+            .enumerate()
+            .map(|(k, r)| json_ring(path, n, &name(k + 1), r))
             .collect()
     };
     match kind {
-        "Polygon" => Ok(vec![rings(coords)?]),
+        "Polygon" => Ok(vec![rings(coords, None)?]),
         "MultiPolygon" => coords
             .as_array()
             .ok_or_else(|| {
                 Error::input(
-                    Location::file(path).at_line(n),
-                    format!("feature {n}: MultiPolygon coordinates are not a list of polygons"),
+                    at(),
+                    "MultiPolygon coordinates are not a list of polygons",
                 )
             })?
             .iter()
-            .map(rings)
+            .enumerate()
+            .map(|(k, p)| rings(p, Some(k + 1)))
             .collect(),
         other => Err(Error::input(
-            Location::file(path).at_line(n),
-            format!("feature {n} is a {other:?}; a boundary layer holds Polygon or MultiPolygon features"),
+            at(),
+            format!("the feature is a {other:?}; a boundary layer holds Polygon or MultiPolygon features"),
         )),
     }
 }

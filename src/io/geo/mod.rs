@@ -81,6 +81,9 @@ pub struct Layer {
     pub features: Vec<RawFeature>,
     /// The ring orientation the format uses.
     pub convention: RingConvention,
+    /// What the reader wants the user to know (records left out, ...),
+    /// each naming the file; see [`Layer::notes`].
+    pub warnings: Vec<String>,
 }
 
 /// Pairs each feature's key with its polygons, numbering features from 1
@@ -138,12 +141,7 @@ pub fn read_layer(req: &LayerRequest) -> Result<Layer> {
 }
 
 fn read_json(path: &Path, bytes: &[u8], req: &LayerRequest) -> Result<Layer> {
-    let doc: Value = serde_json::from_slice(bytes).map_err(|e| {
-        Error::input(
-            Location::file(path).at_line(e.line() as u64),
-            format!("not valid JSON: {e}; expected GeoJSON or TopoJSON"),
-        )
-    })?;
+    let doc: Value = serde_json::from_slice(bytes).map_err(|e| json_error(path, &e))?;
     let sha = sha256_hex(&[bytes]);
     match doc.get("type").and_then(Value::as_str) {
         Some("Topology") => topojson::read(path, &doc, sha, req),
@@ -151,10 +149,39 @@ fn read_json(path: &Path, bytes: &[u8], req: &LayerRequest) -> Result<Layer> {
         other => Err(Error::input(
             Location::file(path),
             format!(
-                "the JSON has type {other:?}; expected a GeoJSON FeatureCollection or a TopoJSON Topology"
+                "{}; expected a GeoJSON FeatureCollection or a TopoJSON Topology",
+                match other {
+                    Some(t) => format!("the JSON has the type {t:?}"),
+                    None => "the JSON has no \"type\" member".to_string(),
+                }
             ),
         )),
     }
+}
+
+/// A JSON syntax error in the project's words: where (line and character)
+/// and what the parser expected.
+fn json_error(path: &Path, e: &serde_json::Error) -> Error {
+    use serde_json::error::Category;
+    // The parser's own text without its " at line L column C" tail, which
+    // the location already gives.
+    let text = e.to_string();
+    let what = text
+        .rsplit_once(" at line ")
+        .map_or(text.as_str(), |(w, _)| w)
+        .to_string();
+    let why = match e.classify() {
+        Category::Eof => "the file ends in the middle of the JSON (truncated?)".to_string(),
+        Category::Io => "the file cannot be read as text".to_string(),
+        Category::Syntax | Category::Data => what,
+    };
+    Error::input(
+        Location::file(path).at_line(e.line() as u64),
+        format!(
+            "not valid JSON at character {}: {why}; expected GeoJSON or TopoJSON",
+            e.column()
+        ),
+    )
 }
 
 /// The key text of a JSON value: strings as they are, integral numbers
@@ -171,50 +198,192 @@ pub fn key_text(v: &Value) -> Option<String> {
     }
 }
 
-/// Checks that a coordinate is a finite longitude/latitude; a layer with
-/// metres or feet fails here with a message saying to reproject.
+/// How far past ±180 / ±90 a coordinate may stray from floating-point
+/// rounding (of a TopoJSON transform, say) before it is an error: about
+/// 0.1 mm on the ground.
+pub const LONLAT_SLACK: f64 = 1e-9;
+
+/// Checks that a coordinate of feature `feature` is a longitude within
+/// -180..180 and a latitude within -90..90 (see [`check_coord`]).
 pub fn check_lonlat(path: &Path, feature: u64, c: Coord<f64>) -> Result<()> {
-    if !c.x.is_finite() || !c.y.is_finite() {
-        return Err(Error::input(
-            Location::file(path).at_line(feature),
-            format!("feature {feature}: a coordinate is not a finite number"),
-        ));
-    }
-    if c.x.abs() > 540.0 || c.y.abs() > 90.000_001 {
-        return Err(Error::input(
-            Location::file(path).at_line(feature),
-            format!(
-                "feature {feature}: coordinate ({}, {}) is not longitude/latitude; the layer looks \
-                 projected: reproject it to longitude/latitude (NAD83 or WGS84) first",
-                c.x, c.y
-            ),
-        ));
-    }
-    Ok(())
+    check_coord(Location::file(path).at_feature(feature), "", c)
 }
 
-/// Resolves the key of each feature. `props` gives a feature's properties,
-/// `id` its id. Errors: a field no feature has (listing the fields), a
-/// feature without a value, no key and no ids.
+/// Checks that a coordinate is a longitude within -180..180 and a latitude
+/// within -90..90 (within [`LONLAT_SLACK`]). The error names the location,
+/// `detail` (which ring and vertex, say; may be empty) and the coordinate;
+/// a layer in metres or feet is told to reproject.
+pub fn check_coord(location: Location, detail: &str, c: Coord<f64>) -> Result<()> {
+    let lon_ok = c.x.is_finite() && c.x.abs() <= 180.0 + LONLAT_SLACK;
+    let lat_ok = c.y.is_finite() && c.y.abs() <= 90.0 + LONLAT_SLACK;
+    if lon_ok && lat_ok {
+        return Ok(());
+    }
+    let what = match (lon_ok, lat_ok) {
+        (false, true) => "its longitude is outside -180..180".to_string(),
+        (true, false) => "its latitude is outside -90..90".to_string(),
+        _ => "its longitude is outside -180..180 and its latitude outside -90..90".to_string(),
+    };
+    let hint = if !c.x.is_finite() || !c.y.is_finite() {
+        "a coordinate must be a finite number"
+    } else if c.x.abs() > 360.0 || c.y.abs() > 180.0 {
+        "the layer looks projected (metres or feet): reproject it to longitude/latitude \
+         (NAD83 or WGS84) first"
+    } else {
+        "the file is damaged, or longitude and latitude are swapped or shifted"
+    };
+    let detail = if detail.is_empty() {
+        String::new()
+    } else {
+        format!("{detail}: ")
+    };
+    Err(Error::input(
+        location,
+        format!("{detail}coordinate ({}, {}): {what}; {hint}", c.x, c.y),
+    ))
+}
+
+/// Runs a layer reader with a last guard: a panic inside it (a bug, or a
+/// dependency's) becomes an error naming the file instead of ending the
+/// program.
+pub fn guarded<T>(path: &Path, read: impl FnOnce() -> Result<T>) -> Result<T> {
+    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(read)) {
+        Ok(r) => r,
+        Err(payload) => {
+            let what = payload
+                .downcast_ref::<&str>()
+                .map(|s| s.to_string())
+                .or_else(|| payload.downcast_ref::<String>().cloned())
+                .unwrap_or_default();
+            Err(Error::input(
+                Location::file(path),
+                format!(
+                    "the layer could not be read ({what}); the file is damaged or in a form \
+                     regionkey does not read"
+                ),
+            ))
+        }
+    }
+}
+
+/// What to do with several features that carry the same key.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum RepeatedKeys {
+    /// Take them together as one unit (their overlap counted once), with a
+    /// warning naming each key.
+    #[default]
+    Merge,
+    /// Refuse the layer, naming the first key and its features.
+    Refuse,
+}
+
+/// A key carried by several features of a layer.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct RepeatedKey {
+    /// The key.
+    pub key: String,
+    /// The features (1-based numbers in file order) that carry it.
+    pub features: Vec<u64>,
+}
+
+impl Layer {
+    /// Keys carried by more than one feature, sorted by key.
+    pub fn repeated_keys(&self) -> Vec<RepeatedKey> {
+        let mut by_key: std::collections::BTreeMap<&str, Vec<u64>> = Default::default();
+        for f in &self.features {
+            by_key.entry(&f.key).or_default().push(f.number);
+        }
+        by_key
+            .into_iter()
+            .filter(|(_, v)| v.len() > 1)
+            .map(|(k, features)| RepeatedKey {
+                key: k.to_string(),
+                features,
+            })
+            .collect()
+    }
+
+    /// The warnings to show about this layer: the reader's own (records
+    /// left out, ...) and one line per repeated key (merged), or an error
+    /// naming the first repeated key when `repeated` is
+    /// [`RepeatedKeys::Refuse`].
+    /// `option` names the command's option that refuses, for the message.
+    pub fn notes(&self, repeated: RepeatedKeys, option: Option<&str>) -> Result<Vec<String>> {
+        let mut out = self.warnings.clone();
+        let keys = self.repeated_keys();
+        let list = |v: &[u64]| v.iter().map(u64::to_string).collect::<Vec<_>>().join(", ");
+        if let (RepeatedKeys::Refuse, Some(first)) = (repeated, keys.first()) {
+            return Err(Error::input(
+                Location::file(&self.path)
+                    .at_feature(first.features[1])
+                    .in_column(&self.key),
+                format!(
+                    "the key {:?} is carried by features {}{}; each unit must have one key{}",
+                    first.key,
+                    list(&first.features),
+                    if keys.len() > 1 {
+                        format!(", and {} more key(s) repeat", keys.len() - 1)
+                    } else {
+                        String::new()
+                    },
+                    option
+                        .map(|o| format!(
+                            " (leave out {o} refuse to take them together as one unit)"
+                        ))
+                        .unwrap_or_default()
+                ),
+            ));
+        }
+        const SHOWN: usize = 10;
+        for k in keys.iter().take(SHOWN) {
+            out.push(format!(
+                "{}: the key {:?} ({}) is carried by features {}; they are taken together as \
+                 one unit{}",
+                self.path.display(),
+                k.key,
+                self.key,
+                list(&k.features),
+                option
+                    .map(|o| format!(" (give {o} refuse to stop instead)"))
+                    .unwrap_or_default()
+            ));
+        }
+        if keys.len() > SHOWN {
+            out.push(format!(
+                "{}: {} more keys are carried by several features each and taken together \
+                 likewise (the metadata's repairs list them all)",
+                self.path.display(),
+                keys.len() - SHOWN
+            ));
+        }
+        Ok(out)
+    }
+}
+
+/// Resolves the key of each feature. `ids` gives each feature's id,
+/// `numbers` its 1-based number in the file (for messages) and `values(i,
+/// field)` the text of a field. Errors: a field no feature has (listing the
+/// fields), a feature without a value, no key and no ids.
 pub fn resolve_keys(
     path: &Path,
     req: &LayerRequest,
     fields: &[String],
     ids: &[Option<String>],
+    numbers: &[u64],
     values: impl Fn(usize, &str) -> Option<String>,
 ) -> Result<(Vec<String>, String)> {
     let mut keys = Vec::with_capacity(ids.len());
     match &req.key {
         None => {
             for (i, id) in ids.iter().enumerate() {
-                let n = i as u64 + 1;
+                let n = numbers[i];
                 match id {
                     Some(k) => keys.push(k.clone()),
                     None => {
                         return Err(Error::input(
-                            Location::file(path).at_line(n),
+                            Location::file(path).at_feature(n),
                             format!(
-                                "feature {n} has no id; give {} FIELD (the fields are: {})",
+                                "the feature has no id; give {} FIELD (the fields are: {})",
                                 req.key_option,
                                 list(fields)
                             ),
@@ -237,14 +406,17 @@ pub fn resolve_keys(
                 ));
             }
             for (i, id) in ids.iter().enumerate() {
-                let n = i as u64 + 1;
+                let n = numbers[i];
                 let v = if use_id { id.clone() } else { values(i, field) };
                 match v {
                     Some(k) => keys.push(k),
                     None => {
                         return Err(Error::input(
-                            Location::file(path).at_line(n).in_column(field),
-                            format!("feature {n} has no value in field {field:?}"),
+                            Location::file(path).at_feature(n).in_column(field),
+                            format!(
+                                "the feature has no value in field {field:?}; every feature \
+                                 needs its key"
+                            ),
                         ))
                     }
                 }
@@ -260,31 +432,6 @@ fn list(fields: &[String]) -> String {
     } else {
         fields.join(", ")
     }
-}
-
-/// Parses a JSON position list into a ring, checking each coordinate.
-pub fn json_ring(path: &Path, feature: u64, v: &Value) -> Result<Ring> {
-    let bad = || {
-        Error::input(
-            Location::file(path).at_line(feature),
-            format!("feature {feature}: a ring is not a list of [longitude, latitude] positions"),
-        )
-    };
-    let arr = v.as_array().ok_or_else(bad)?;
-    let mut ring = Vec::with_capacity(arr.len());
-    for p in arr {
-        let p = p.as_array().ok_or_else(bad)?;
-        let (Some(x), Some(y)) = (
-            p.first().and_then(Value::as_f64),
-            p.get(1).and_then(Value::as_f64),
-        ) else {
-            return Err(bad());
-        };
-        let c = Coord { x, y };
-        check_lonlat(path, feature, c)?;
-        ring.push(c);
-    }
-    Ok(ring)
 }
 
 #[cfg(test)]

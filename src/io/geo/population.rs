@@ -109,7 +109,7 @@ fn read_points_table(path: &Path, field: &str) -> Result<(PopulationLayer, Strin
             x: num(lon)?,
             y: num(lat)?,
         };
-        check_lonlat(path, table.lines[i], c)?;
+        super::check_coord(table.location(i, lon), "", c)?;
         let n = num(count)?;
         if n < 0.0 {
             return Err(Error::input(

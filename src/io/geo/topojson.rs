@@ -7,7 +7,7 @@ use std::path::Path;
 use geo::Coord;
 use serde_json::Value;
 
-use super::{check_lonlat, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use super::{check_coord, key_text, raw_features, resolve_keys, Layer, LayerRequest};
 use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -22,8 +22,13 @@ fn has_polygons(obj: &Value) -> bool {
     }
 }
 
-/// Reads one object of a parsed Topology.
+/// Reads one object of a parsed Topology. A panic inside (a bug) is turned
+/// into an error naming the file as a last guard.
 pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
+    super::guarded(path, || read_unguarded(path, doc, sha256, req))
+}
+
+fn read_unguarded(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
     let objects = doc
         .get("objects")
         .and_then(Value::as_object)
@@ -75,7 +80,14 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
             .get("geometries")
             .and_then(Value::as_array)
             .map(|g| g.iter().collect())
-            .unwrap_or_default(),
+            .ok_or_else(|| {
+                Error::input(
+                    Location::file(path),
+                    format!(
+                        "the object {name:?} is a GeometryCollection without a \"geometries\" list"
+                    ),
+                )
+            })?,
         _ => vec![obj],
     };
     let mut fields = BTreeSet::new();
@@ -90,7 +102,8 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
         polygons.push(geometry_polygons(path, n, g, &arcs)?);
     }
     let fields: Vec<String> = fields.into_iter().collect();
-    let (keys, key) = resolve_keys(path, req, &fields, &ids, |i, field| {
+    let numbers: Vec<u64> = (1..=geometries.len() as u64).collect();
+    let (keys, key) = resolve_keys(path, req, &fields, &ids, &numbers, |i, field| {
         geometries[i]
             .get("properties")
             .and_then(|p| p.get(field))
@@ -106,6 +119,7 @@ pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Res
         fields,
         features,
         convention: RingConvention::ExteriorClockwise,
+        warnings: Vec::new(),
     })
 }
 
@@ -120,13 +134,15 @@ fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
                 let a = t
                     .get(k)
                     .and_then(Value::as_array)
-                    .ok_or_else(|| bad("transform"))?;
+                    .ok_or_else(|| bad(&format!("the transform has no {k:?} pair")))?;
                 match (
                     a.first().and_then(Value::as_f64),
                     a.get(1).and_then(Value::as_f64),
                 ) {
-                    (Some(x), Some(y)) => Ok((x, y)),
-                    _ => Err(bad("transform")),
+                    (Some(x), Some(y)) if x.is_finite() && y.is_finite() => Ok((x, y)),
+                    _ => Err(bad(&format!(
+                        "the transform's {k:?} is not a pair of finite numbers"
+                    ))),
                 }
             };
             Some((pair("scale")?, pair("translate")?))
@@ -137,19 +153,31 @@ fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
         .and_then(Value::as_array)
         .ok_or_else(|| bad("no \"arcs\" list"))?;
     let mut out = Vec::with_capacity(arcs.len());
-    for arc in arcs {
-        let pts = arc.as_array().ok_or_else(|| bad("an arc is not a list"))?;
+    for (i, arc) in arcs.iter().enumerate() {
+        let pts = arc.as_array().ok_or_else(|| {
+            Error::input(
+                Location::file(path).in_column("arcs"),
+                format!("arc {i} is not a list of positions"),
+            )
+        })?;
         let mut v = Vec::with_capacity(pts.len());
         let (mut x, mut y) = (0.0f64, 0.0f64);
-        for p in pts {
-            let p = p
-                .as_array()
-                .ok_or_else(|| bad("an arc position is not a list"))?;
-            let (Some(a), Some(b)) = (
-                p.first().and_then(Value::as_f64),
-                p.get(1).and_then(Value::as_f64),
-            ) else {
-                return Err(bad("an arc position is not two numbers"));
+        for (k, p) in pts.iter().enumerate() {
+            let pair = p.as_array().and_then(|p| {
+                Some((
+                    p.first().and_then(Value::as_f64)?,
+                    p.get(1).and_then(Value::as_f64)?,
+                ))
+            });
+            let Some((a, b)) = pair else {
+                return Err(Error::input(
+                    Location::file(path).in_column("arcs"),
+                    format!(
+                        "arc {i}, position {}: {} is not a pair of numbers",
+                        k + 1,
+                        short(p)
+                    ),
+                ));
             };
             match transform {
                 Some(((sx, sy), (tx, ty))) => {
@@ -168,29 +196,44 @@ fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
     Ok(out)
 }
 
-fn ring_from_arcs(path: &Path, n: u64, idx: &Value, arcs: &[Vec<Coord<f64>>]) -> Result<Ring> {
-    let bad = |what: String| {
-        Error::input(
-            Location::file(path).at_line(n),
-            format!("feature {n}: {what}"),
-        )
-    };
+fn ring_from_arcs(
+    path: &Path,
+    n: u64,
+    place: &str,
+    idx: &Value,
+    arcs: &[Vec<Coord<f64>>],
+) -> Result<Ring> {
+    let at = || Location::file(path).at_feature(n).in_column("arcs");
+    let bad = |what: String| Error::input(at(), format!("{place}: {what}"));
     let list = idx
         .as_array()
-        .ok_or_else(|| bad("a ring is not a list of arc indices".into()))?;
+        .ok_or_else(|| bad("the ring is not a list of arc indices".into()))?;
     let mut ring: Ring = Vec::new();
     for a in list {
         let i = a
             .as_i64()
-            .ok_or_else(|| bad(format!("arc index {a} is not an integer")))?;
+            .ok_or_else(|| bad(format!("arc index {} is not an integer", short(a))))?;
         let (k, reversed) = if i >= 0 {
-            (i as usize, false)
+            (i as u64, false)
         } else {
-            ((!i) as usize, true)
+            (!i as u64, true)
         };
-        let arc = arcs
-            .get(k)
-            .ok_or_else(|| bad(format!("arc index {i} is out of range")))?;
+        let arc = usize::try_from(k)
+            .ok()
+            .and_then(|k| arcs.get(k))
+            .ok_or_else(|| {
+                bad(format!(
+                    "arc index {i} is out of range (the Topology has {} arcs)",
+                    arcs.len()
+                ))
+            })?;
+        for (p, &c) in arc.iter().enumerate() {
+            check_coord(
+                at(),
+                &format!("{place}, arc {k}, position {}, after the transform", p + 1),
+                c,
+            )?;
+        }
         let skip = usize::from(!ring.is_empty());
         if reversed {
             ring.extend(arc.iter().rev().skip(skip));
@@ -198,10 +241,17 @@ fn ring_from_arcs(path: &Path, n: u64, idx: &Value, arcs: &[Vec<Coord<f64>>]) ->
             ring.extend(arc.iter().skip(skip));
         }
     }
-    for &c in &ring {
-        check_lonlat(path, n, c)?;
-    }
     Ok(ring)
+}
+
+/// A JSON value for a message, cut to 40 characters.
+fn short(v: &Value) -> String {
+    let s = v.to_string();
+    if s.chars().count() > 40 {
+        format!("{}...", s.chars().take(40).collect::<String>())
+    } else {
+        s
+    }
 }
 
 fn geometry_polygons(
@@ -210,34 +260,45 @@ fn geometry_polygons(
     g: &Value,
     arcs: &[Vec<Coord<f64>>],
 ) -> Result<Vec<Vec<Ring>>> {
+    let at = || Location::file(path).at_feature(n).in_column("arcs");
     let kind = g.get("type").and_then(Value::as_str);
     let a = g.get("arcs").unwrap_or(&Value::Null);
-    let polygon = |p: &Value| -> Result<Vec<Ring>> {
+    let polygon = |p: &Value, number: Option<usize>| -> Result<Vec<Ring>> {
+        let name = |r: usize| match number {
+            Some(k) => format!("polygon {k}, ring {r}"),
+            None => format!("ring {r}"),
+        };
         p.as_array()
             .ok_or_else(|| {
                 Error::input(
-                    Location::file(path).at_line(n),
-                    format!("feature {n}: a polygon is not a list of rings"),
+                    at(),
+                    match number {
+                        Some(k) => format!("polygon {k} is not a list of rings"),
+                        None => "the polygon is not a list of rings".to_string(),
+                    },
                 )
             })?
             .iter()
-            .map(|r| ring_from_arcs(path, n, r, arcs))
+            .enumerate()
+            .map(|(r, ring)| ring_from_arcs(path, n, &name(r + 1), ring, arcs))
             .collect()
     };
     match kind {
         None => Ok(Vec::new()),
-        Some("Polygon") => Ok(vec![polygon(a)?]),
+        Some("Polygon") => Ok(vec![polygon(a, None)?]),
         Some("MultiPolygon") => a
             .as_array()
-            .ok_or_else(|| {
-                Error::input(Location::file(path).at_line(n), format!("feature {n}: MultiPolygon arcs are not a list"))
-            })?
+            .ok_or_else(|| Error::input(at(), "MultiPolygon arcs are not a list of polygons"))?
             .iter()
-            .map(polygon)
+            .enumerate()
+            .map(|(k, p)| polygon(p, Some(k + 1)))
             .collect(),
         Some(other) => Err(Error::input(
-            Location::file(path).at_line(n),
-            format!("feature {n} is a {other:?}; a boundary layer holds Polygon or MultiPolygon geometries"),
+            Location::file(path).at_feature(n),
+            format!(
+                "the geometry is a {other:?}; a boundary layer holds Polygon or MultiPolygon \
+                 geometries"
+            ),
         )),
     }
 }

@@ -1,0 +1,682 @@
+//! Matching a whole table in memory: columns of names, states and years
+//! in; one resolution per distinct (name, state, year), the row -> result
+//! map, and the review list out. The command `regionkey match` and the
+//! Python package both call [`match_rows`].
+//!
+//! Each distinct (name, state, year) is resolved once, against the units of
+//! its own vintage (a year after the reference's latest vintage uses the
+//! latest). Decisions win over the matcher in the years they cover
+//! ([`crate::core::decisions`]). The review list has one row per (name,
+//! state) and run of years that resolved alike, so a name that needs a
+//! person in 2022-2023 but not before is listed for 2022-2023 only.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+
+use rayon::prelude::*;
+
+use crate::core::decisions::{Choice, Decision, Decisions, Years, NONE};
+use crate::core::fips;
+use crate::core::matcher::{Candidate, CodeForm, Matcher, Method, Resolution, Status};
+use crate::core::reference::Reference;
+use crate::error::{Error, Result};
+
+/// The columns `regionkey match` adds to every row, in order.
+pub const ADDED_COLUMNS: [&str; 7] = [
+    "code",
+    "code_name",
+    "match_status",
+    "match_method",
+    "match_score",
+    "note",
+    "candidates",
+];
+
+/// The added fields of one resolution, in the order of [`ADDED_COLUMNS`]
+/// (the score with three decimals; candidates joined by `;`).
+pub fn added_fields(r: &Resolution) -> [String; 7] {
+    let candidates: Vec<&str> = r.candidates.iter().map(|c| c.code.as_str()).collect();
+    [
+        r.code.clone().unwrap_or_default(),
+        r.name.clone().unwrap_or_default(),
+        r.status.as_str().to_string(),
+        r.method.map_or(String::new(), |m| m.as_str().to_string()),
+        // Scores lie in 0..=1, so no negative zero can appear.
+        format!("{:.3}", r.score),
+        r.note.clone(),
+        candidates.join(";"),
+    ]
+}
+
+/// What the rows are matched against.
+#[derive(Debug, Clone, Copy)]
+pub struct Settings {
+    /// How numbers in the name column are read.
+    pub codes: CodeForm,
+    /// The vintage of rows without a year of their own.
+    pub vintage: u16,
+    /// First and latest vintage the reference covers; row years after the
+    /// latest use the latest, years before the first are refused.
+    pub span: (u16, u16),
+}
+
+/// The matchers of the vintages met so far, built on first use.
+pub struct Matchers<'r> {
+    reference: &'r Reference,
+    codes: CodeForm,
+    built: HashMap<u16, Matcher<'r>>,
+}
+
+impl<'r> Matchers<'r> {
+    /// No matcher built yet.
+    pub fn new(reference: &'r Reference, codes: CodeForm) -> Self {
+        Matchers {
+            reference,
+            codes,
+            built: HashMap::new(),
+        }
+    }
+
+    /// The matcher of `vintage`.
+    pub fn get(&mut self, vintage: u16) -> &Matcher<'r> {
+        let (reference, codes) = (self.reference, self.codes);
+        self.built
+            .entry(vintage)
+            .or_insert_with(|| Matcher::new(reference, vintage, codes))
+    }
+
+    /// The resolution a decision gives in `vintage`. With per-row years
+    /// (`any_vintage`), a code that is no unit of that vintage but is one of
+    /// another is accepted with a note. Otherwise a code outside the
+    /// vintage is an error naming the decision's line and column.
+    pub fn decide(&mut self, vintage: u16, d: &Decision, any_vintage: bool) -> Result<Resolution> {
+        let codes = match &d.choice {
+            Choice::NotAUnit => return Ok(self.get(vintage).decided(None).expect("none resolves")),
+            Choice::Codes(codes) => codes,
+        };
+        let mut parts: Vec<Resolution> = Vec::with_capacity(codes.len());
+        for c in codes {
+            parts.push(self.decide_one(vintage, c, d, any_vintage)?);
+        }
+        if parts.len() == 1 {
+            return Ok(parts.remove(0));
+        }
+        // A unit made of several units: members in code order, joined by +.
+        parts.sort_by(|a, b| a.code.cmp(&b.code));
+        parts.dedup_by(|a, b| a.code == b.code);
+        let members: Vec<String> = parts
+            .iter()
+            .map(|p| {
+                format!(
+                    "{} {}",
+                    p.code.as_deref().unwrap_or(""),
+                    p.name.as_deref().unwrap_or("")
+                )
+            })
+            .collect();
+        let join = |f: &dyn Fn(&Resolution) -> String, sep: &str| {
+            parts.iter().map(f).collect::<Vec<String>>().join(sep)
+        };
+        Ok(Resolution {
+            status: Status::Matched,
+            code: Some(join(&|p| p.code.clone().unwrap_or_default(), "+")),
+            name: Some(join(&|p| p.name.clone().unwrap_or_default(), " + ")),
+            method: Some(Method::Decision),
+            score: 1.0,
+            note: format!(
+                "decided: made of {} units: {}",
+                parts.len(),
+                members.join(", ")
+            ),
+            candidates: Vec::new(),
+        })
+    }
+
+    fn decide_one(
+        &mut self,
+        vintage: u16,
+        code: &str,
+        d: &Decision,
+        any_vintage: bool,
+    ) -> Result<Resolution> {
+        if let Some(r) = self.get(vintage).decided(Some(code)) {
+            return Ok(r);
+        }
+        if any_vintage {
+            let normalized = normalize_code(self.codes, code);
+            let first = self
+                .reference
+                .eras(&normalized)
+                .first()
+                .map(|e| e.valid.from);
+            if let Some(valid) = first {
+                if let Some(mut r) = self.get(valid).decided(Some(code)) {
+                    r.note = format!("decided code is a unit of another vintage (from {valid})");
+                    return Ok(r);
+                }
+            }
+        }
+        let years = if d.years.is_all() {
+            String::new()
+        } else {
+            format!(" (the decision's years: {})", d.years)
+        };
+        Err(Error::input(
+            d.location.clone(),
+            format!(
+                "{code:?} is not a unit in {vintage}{years} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched, or narrow the decision's years"
+            ),
+        ))
+    }
+}
+
+/// A code as the reference writes it: FIPS codes get their lost leading
+/// zero back ("2066" is 02066); a user's own codes stay as written.
+pub fn normalize_code(codes: CodeForm, text: &str) -> String {
+    let form = match codes {
+        CodeForm::County => fips::CodeForm::County,
+        CodeForm::State => fips::CodeForm::State,
+        CodeForm::Plain => fips::CodeForm::Plain,
+    };
+    form.parse(text)
+        .map_or_else(|_| text.trim().to_string(), fips::Code::into_string)
+}
+
+/// One distinct (name, state, year) of the input, with its result.
+#[derive(Debug, Clone)]
+pub struct Key {
+    /// The name as written (untrimmed, as in the input).
+    pub name: String,
+    /// The state as written (empty without a state column).
+    pub state: String,
+    /// The row's year (per-row years) or `None` (one vintage for all rows).
+    pub year: Option<u16>,
+    /// The vintage it was matched against.
+    pub vintage: u16,
+    /// How many input rows carry it.
+    pub rows: u64,
+    /// What the rows get: the decision where one applies, else the matcher's.
+    pub resolution: Resolution,
+    /// What the matcher said (equal to `resolution` when not decided).
+    pub matcher: Resolution,
+    /// The decision that applied, if any.
+    pub decision: Option<Decision>,
+}
+
+/// One row of the review list: a (name, state) and the years in which it
+/// resolved alike, what the matcher said, and the decision if one is taken.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReviewItem {
+    /// The name as written in the input (trimmed).
+    pub name: String,
+    /// The state as written (trimmed; empty without a state column).
+    pub state: String,
+    /// The years of the rows it covers (the vintage when rows have no year
+    /// of their own); for a decided item, the decision's own years (empty =
+    /// every year), so the file fed back keeps the decision as taken.
+    pub years: Years,
+    /// `review` or `unmatched` (what the matcher said), or `matched` when
+    /// only a decision brought the row here.
+    pub status: String,
+    /// How many input rows it covers.
+    pub rows: u64,
+    /// Why it needs a decision.
+    pub reason: String,
+    /// Ranked candidates.
+    pub candidates: Vec<Candidate>,
+    /// The decision already taken (a code, codes joined by `+`, or
+    /// [`NONE`]), or empty.
+    pub chosen: String,
+}
+
+/// The result of matching a table.
+#[derive(Debug, Clone, Default)]
+pub struct Matched {
+    /// Distinct (name, state, year), in order of first appearance.
+    pub keys: Vec<Key>,
+    /// For each input row, the index of its key.
+    pub row_key: Vec<u32>,
+    /// The review list.
+    pub review: Vec<ReviewItem>,
+    /// Decisions given.
+    pub decisions: usize,
+}
+
+/// Counts for the summary.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Tally {
+    /// Input rows.
+    pub rows: u64,
+    /// Distinct (name, state) pairs.
+    pub names: usize,
+    /// Rows by status.
+    pub by_status: BTreeMap<Status, u64>,
+    /// Matched rows by method.
+    pub by_method: BTreeMap<Method, u64>,
+    /// Distinct (name, state) with rows still needing a person.
+    pub open: usize,
+    /// Distinct decisions that applied to some row.
+    pub decisions_used: usize,
+    /// Decisions given.
+    pub decisions: usize,
+}
+
+impl Matched {
+    /// Counts by status and method, names, open names and decisions used.
+    pub fn tally(&self) -> Tally {
+        let mut t = Tally {
+            rows: self.row_key.len() as u64,
+            decisions: self.decisions,
+            ..Tally::default()
+        };
+        let mut names: BTreeSet<(&str, &str)> = BTreeSet::new();
+        let mut open: BTreeSet<(&str, &str)> = BTreeSet::new();
+        let mut used: BTreeSet<String> = BTreeSet::new();
+        for k in &self.keys {
+            let key = (k.name.trim(), k.state.trim());
+            names.insert(key);
+            *t.by_status.entry(k.resolution.status).or_default() += k.rows;
+            if k.resolution.status == Status::Matched {
+                if let Some(m) = k.resolution.method {
+                    *t.by_method.entry(m).or_default() += k.rows;
+                }
+            }
+            match &k.decision {
+                Some(d) => {
+                    used.insert(d.location.to_string());
+                }
+                None if k.resolution.status != Status::Matched => {
+                    open.insert(key);
+                }
+                None => {}
+            }
+        }
+        t.names = names.len();
+        t.open = open.len();
+        t.decisions_used = used.len();
+        t
+    }
+}
+
+/// The vintage of a row's year: the year itself, the latest vintage for
+/// later years; `None` before the first.
+pub fn vintage_of(year: u16, span: (u16, u16)) -> Option<u16> {
+    (year >= span.0).then_some(year.min(span.1))
+}
+
+/// Matches the rows given as columns: `names`, optionally `states` and
+/// `years` (each as long as `names`). Decisions apply in their years;
+/// `progress` is told how many rows each resolved key covers. Distinct keys
+/// are resolved in parallel; the result does not depend on the thread
+/// count.
+///
+/// Errors: a year before the reference's first vintage (naming the row,
+/// 1-based), a decision naming a code that is no unit where it applies.
+pub fn match_rows<S: AsRef<str> + Sync>(
+    reference: &Reference,
+    settings: Settings,
+    names: &[S],
+    states: Option<&[S]>,
+    years: Option<&[u16]>,
+    decisions: &Decisions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<Matched> {
+    let n = names.len();
+    if states.is_some_and(|s| s.len() != n) || years.is_some_and(|y| y.len() != n) {
+        return Err(Error::Usage(format!(
+            "the columns of names, states and years differ in length ({n}, {}, {})",
+            states.map_or(n, <[S]>::len),
+            years.map_or(n, <[u16]>::len)
+        )));
+    }
+    let mut matchers = Matchers::new(reference, settings.codes);
+    let any_vintage = years.is_some();
+    // With one vintage for all rows, the decisions that apply to it are
+    // checked before the long work starts.
+    if !any_vintage {
+        for d in decisions.iter() {
+            if d.years.contains(settings.vintage) {
+                matchers.decide(settings.vintage, d, false)?;
+            }
+        }
+    }
+
+    // Each distinct (name, state, year) once, in input order.
+    let mut index: HashMap<(&str, &str, Option<u16>), u32> = HashMap::new();
+    let mut pending: Vec<(&str, &str, Option<u16>, u16, u64)> = Vec::new();
+    let mut row_key: Vec<u32> = Vec::with_capacity(n);
+    for i in 0..n {
+        let name = names[i].as_ref();
+        let state = states.map_or("", |s| s[i].as_ref());
+        let year = years.map(|y| y[i]);
+        let vintage = match year {
+            None => settings.vintage,
+            Some(y) => vintage_of(y, settings.span).ok_or_else(|| {
+                Error::Usage(format!(
+                    "row {}: year {y} is before the reference's first vintage ({})",
+                    i + 1,
+                    settings.span.0
+                ))
+            })?,
+        };
+        let id = *index.entry((name, state, year)).or_insert_with(|| {
+            pending.push((name, state, year, vintage, 0));
+            (pending.len() - 1) as u32
+        });
+        pending[id as usize].4 += 1;
+        row_key.push(id);
+    }
+
+    let vintages: BTreeSet<u16> = pending.iter().map(|p| p.3).collect();
+    for v in vintages {
+        matchers.get(v);
+    }
+    let ready = &matchers.built;
+    let has_states = states.is_some();
+    let found: Vec<Resolution> = pending
+        .par_iter()
+        .map(|&(name, state, _, vintage, rows)| {
+            let r = ready[&vintage].resolve(name, has_states.then_some(state));
+            progress(rows);
+            r
+        })
+        .collect();
+
+    let mut keys: Vec<Key> = Vec::with_capacity(pending.len());
+    for (&(name, state, year, vintage, rows), matcher) in pending.iter().zip(found) {
+        let decision = decisions
+            .find(name, state, year.unwrap_or(settings.vintage))
+            .cloned();
+        let resolution = match &decision {
+            Some(d) => matchers.decide(vintage, d, any_vintage)?,
+            None => matcher.clone(),
+        };
+        keys.push(Key {
+            name: name.to_string(),
+            state: state.to_string(),
+            year,
+            vintage,
+            rows,
+            resolution,
+            matcher,
+            decision,
+        });
+    }
+    let review = review_items(&keys, settings.vintage);
+    Ok(Matched {
+        keys,
+        row_key,
+        review,
+        decisions: decisions.len(),
+    })
+}
+
+/// The review list: what the matcher could not settle, and what a decision
+/// settled (so the file fed back as decisions keeps them). One row per
+/// (name, state) and outcome (the matcher's status and candidates, or the
+/// decision taken), covering the years in which the name came out so.
+/// Review before unmatched, then most rows first, then input order.
+pub fn review_items(keys: &[Key], vintage: u16) -> Vec<ReviewItem> {
+    // (name, state, status, candidate codes, decision) -> item index.
+    type Alike = (String, String, Status, Vec<String>, Option<(Choice, Years)>);
+    let mut groups: HashMap<Alike, usize> = HashMap::new();
+    let mut items: Vec<(Status, usize, ReviewItem, BTreeSet<u16>)> = Vec::new();
+    for (order, k) in keys.iter().enumerate() {
+        let said = &k.matcher;
+        if said.status == Status::Matched && k.decision.is_none() {
+            continue;
+        }
+        let alike: Alike = (
+            k.name.trim().to_string(),
+            k.state.trim().to_string(),
+            said.status,
+            said.candidates.iter().map(|c| c.code.clone()).collect(),
+            k.decision
+                .as_ref()
+                .map(|d| (d.choice.clone(), d.years.clone())),
+        );
+        let year = k.year.unwrap_or(vintage);
+        if let Some(&i) = groups.get(&alike) {
+            items[i].2.rows += k.rows;
+            items[i].3.insert(year);
+            continue;
+        }
+        groups.insert(alike, items.len());
+        let chosen = k
+            .decision
+            .as_ref()
+            .map_or(String::new(), |d| d.choice.to_string());
+        // A decided item keeps its decision's own years.
+        let years = k
+            .decision
+            .as_ref()
+            .map_or(Years::all(), |d| d.years.clone());
+        items.push((
+            said.status,
+            order,
+            ReviewItem {
+                name: k.name.trim().to_string(),
+                state: k.state.trim().to_string(),
+                years,
+                status: said.status.as_str().to_string(),
+                rows: k.rows,
+                reason: said.note.clone(),
+                candidates: said.candidates.clone(),
+                chosen,
+            },
+            BTreeSet::from([year]),
+        ));
+    }
+    for (_, _, item, years) in items.iter_mut() {
+        if item.chosen.is_empty() {
+            item.years = Years::from_years(years.iter().copied());
+        }
+    }
+    items.sort_by(|a, b| {
+        a.0.cmp(&b.0)
+            .then(b.2.rows.cmp(&a.2.rows))
+            .then(a.1.cmp(&b.1))
+    });
+    items.into_iter().map(|x| x.2).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::core::reference::{Parent, Unit, YearSpan};
+    use crate::error::Location;
+
+    /// Two units of one name in one state, and a unit that is renamed: a
+    /// made-up reference for the mechanics (the matcher's rules are tested
+    /// in its own module).
+    fn reference() -> Reference {
+        let unit = |code: &str, name: &str, desc: &str, from: u16, to: Option<u16>| Unit {
+            code: code.into(),
+            name: name.into(),
+            description: desc.into(),
+            parent: Some("01".into()),
+            valid: YearSpan { from, to },
+        };
+        Reference {
+            label: "test".into(),
+            parents: vec![Parent {
+                code: "01".into(),
+                name: "Alpha".into(),
+                short: Some("AL".into()),
+                abbreviations: Vec::new(),
+                kind: "state".into(),
+            }],
+            units: vec![
+                unit("01001", "Baker", "County", 2000, None),
+                unit("01002", "Baker", "city", 2000, None),
+                unit("01003", "Cedar", "County", 2000, Some(2021)),
+                unit("01004", "Cedar Valley", "Region", 2022, None),
+            ],
+            changes: Vec::new(),
+            aliases: Vec::new(),
+        }
+    }
+
+    fn settings() -> Settings {
+        Settings {
+            codes: CodeForm::County,
+            vintage: 2023,
+            span: (2000, 2023),
+        }
+    }
+
+    fn decision(name: &str, years: &str, chosen: &str) -> Decision {
+        Decision {
+            name: name.into(),
+            state: "AL".into(),
+            years: Years::parse(years).unwrap(),
+            choice: Choice::parse(chosen).unwrap().unwrap(),
+            location: Location::file("d.csv").at_line(2),
+        }
+    }
+
+    #[test]
+    fn each_distinct_name_state_and_year_is_resolved_once_and_every_row_is_mapped() {
+        let names = ["Baker County", "Baker County", "Baker", "Baker County"];
+        let states = ["AL", "AL", "AL", "AL"];
+        let years = [2020, 2020, 2020, 2021];
+        let m = match_rows(
+            &reference(),
+            settings(),
+            &names,
+            Some(&states),
+            Some(&years),
+            &Decisions::default(),
+            &|_| {},
+        )
+        .unwrap();
+        assert_eq!(m.keys.len(), 3);
+        assert_eq!(m.row_key, [0, 0, 1, 2]);
+        assert_eq!(m.keys[0].rows, 2);
+        assert_eq!(m.keys[0].resolution.code.as_deref(), Some("01001"));
+        assert_eq!(m.keys[1].resolution.status, Status::Review);
+        let t = m.tally();
+        assert_eq!(t.rows, 4);
+        assert_eq!(t.names, 2);
+        assert_eq!(t.open, 1);
+    }
+
+    #[test]
+    fn review_rows_cover_the_years_that_resolved_alike() {
+        let names = ["Baker"; 5];
+        let states = ["AL"; 5];
+        let years = [2001, 2002, 2003, 2010, 2030];
+        let m = match_rows(
+            &reference(),
+            settings(),
+            &names,
+            Some(&states),
+            Some(&years),
+            &Decisions::default(),
+            &|_| {},
+        )
+        .unwrap();
+        assert_eq!(m.review.len(), 1);
+        assert_eq!(m.review[0].years.to_string(), "2001-2003;2010;2030");
+        assert_eq!(m.review[0].rows, 5);
+    }
+
+    #[test]
+    fn a_decision_applies_only_in_its_years_and_the_other_years_stay_open() {
+        let names = ["Baker"; 4];
+        let states = ["AL"; 4];
+        let years = [2020, 2021, 2022, 2023];
+        let decisions = Decisions::new(vec![decision("Baker", "2022-2023", "1002")]).unwrap();
+        let m = match_rows(
+            &reference(),
+            settings(),
+            &names,
+            Some(&states),
+            Some(&years),
+            &decisions,
+            &|_| {},
+        )
+        .unwrap();
+        let codes: Vec<Option<&str>> = m
+            .keys
+            .iter()
+            .map(|k| k.resolution.code.as_deref())
+            .collect();
+        // The lost leading zero of "1002" is read as the code 01002.
+        assert_eq!(codes, [None, None, Some("01002"), Some("01002")]);
+        assert_eq!(m.review.len(), 2);
+        let open = m.review.iter().find(|r| r.chosen.is_empty()).unwrap();
+        assert_eq!(open.years.to_string(), "2020-2021");
+        let decided = m.review.iter().find(|r| !r.chosen.is_empty()).unwrap();
+        assert_eq!(
+            (decided.chosen.as_str(), decided.years.to_string()),
+            ("1002", "2022-2023".into())
+        );
+        let t = m.tally();
+        assert_eq!((t.open, t.decisions_used), (1, 1));
+    }
+
+    #[test]
+    fn several_chosen_codes_make_one_unit_of_several_in_code_order() {
+        let decisions = Decisions::new(vec![decision("Baker", "", "01002+01001")]).unwrap();
+        let m = match_rows(
+            &reference(),
+            settings(),
+            &["Baker"],
+            Some(&["AL"][..]),
+            None,
+            &decisions,
+            &|_| {},
+        )
+        .unwrap();
+        let r = &m.keys[0].resolution;
+        assert_eq!(r.code.as_deref(), Some("01001+01002"));
+        assert_eq!(r.status, Status::Matched);
+        assert!(r.note.contains("01001 Baker County"), "{}", r.note);
+    }
+
+    #[test]
+    fn with_one_vintage_a_decision_of_another_vintage_is_an_error_only_where_it_applies() {
+        let d = Decisions::new(vec![decision("Cedar", "2023", "01003")]).unwrap();
+        let e = match_rows(
+            &reference(),
+            settings(),
+            &["Cedar"],
+            Some(&["AL"][..]),
+            None,
+            &d,
+            &|_| {},
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("d.csv: line 2") && e.contains("01003"), "{e}");
+        // Tied to 2021, the same decision is simply not used in 2023.
+        let d = Decisions::new(vec![decision("Cedar", "2021", "01003")]).unwrap();
+        let m = match_rows(
+            &reference(),
+            settings(),
+            &["Cedar"],
+            Some(&["AL"][..]),
+            None,
+            &d,
+            &|_| {},
+        )
+        .unwrap();
+        assert!(m.keys[0].decision.is_none());
+    }
+
+    #[test]
+    fn a_year_before_the_first_vintage_names_its_row() {
+        let e = match_rows(
+            &reference(),
+            settings(),
+            &["Baker", "Baker"],
+            None,
+            Some(&[2000, 1990][..]),
+            &Decisions::default(),
+            &|_| {},
+        )
+        .unwrap_err()
+        .to_string();
+        assert!(e.contains("row 2") && e.contains("1990"), "{e}");
+    }
+}
