@@ -595,3 +595,509 @@ fn a_table_whose_periods_use_two_vintages_is_harmonized_in_one_call() {
         .iter()
         .any(|r| r["kind"] == "absent-source" && r["code"] == "09009" && r["period"].is_empty()));
 }
+
+/// `num / den` written exactly to `sig` significant digits (rounded half
+/// up), trailing zeros dropped: an exact rational computation to check the
+/// written figures against.
+fn exact_decimal(num: i128, den: i128, sig: usize) -> String {
+    assert!(num > 0 && den > 0);
+    // Digits of num/den, with the position of the decimal point.
+    let int = num / den;
+    let mut rem = num % den;
+    let mut digits: Vec<u8> = int.to_string().bytes().map(|b| b - b'0').collect();
+    let mut point = digits.len();
+    if int == 0 {
+        digits.clear();
+        point = 0;
+        // Leading zeros after the point are not significant.
+        while rem * 10 < den {
+            rem *= 10;
+            digits.push(0);
+        }
+    }
+    let lead = digits.iter().position(|&d| d != 0).unwrap_or(digits.len());
+    while digits.len() < lead + sig + 1 {
+        rem *= 10;
+        digits.push((rem / den) as u8);
+        rem %= den;
+    }
+    let up = digits[lead + sig] >= 5;
+    digits.truncate(lead + sig);
+    if up {
+        let mut i = digits.len();
+        loop {
+            if i == 0 {
+                digits.insert(0, 1);
+                point += 1;
+                break;
+            }
+            i -= 1;
+            if digits[i] == 9 {
+                digits[i] = 0;
+            } else {
+                digits[i] += 1;
+                break;
+            }
+        }
+    }
+    while digits.len() < point {
+        digits.push(0);
+    }
+    let text = |d: &[u8]| d.iter().map(|d| (b'0' + d) as char).collect::<String>();
+    let int_part = text(&digits[..point]);
+    let int_part = int_part.trim_start_matches('0');
+    let frac = text(&digits[point..]);
+    let frac = frac.trim_end_matches('0');
+    let int_part = if int_part.is_empty() { "0" } else { int_part };
+    if frac.is_empty() {
+        int_part.to_string()
+    } else {
+        format!("{int_part}.{frac}")
+    }
+}
+
+#[test]
+fn figures_keep_their_digits_as_an_exact_rational_computation_gives_them() {
+    // Guards: a rate of 0.0010547 written as 0.001055, counts written as
+    // 315.000000, and every rate turned into 0.00 by --decimals 2.
+    // A: 0.3 in X, 0.7 in Y; B wholly in X; C wholly in Z.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "cw.csv",
+        "from_code,to_code,weight,target_share,basis\nA,X,0.3,0.5,area\nA,Y,0.7,1,area\nB,X,1,0.5,area\nC,Z,1,1,area\n",
+    );
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "code,n,d\nA,10547,10000000\nB,1,3\nC,315,1000\n",
+    );
+    let run = |extra: &[&str], name: &str| -> Vec<Row> {
+        let out = dir.path().join(name);
+        regionkey()
+            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+            .args(["--sum", "n,d", "--ratio", "rate=n/d", "-q", "-o"])
+            .arg(&out)
+            .args(extra)
+            .assert()
+            .success();
+        read_rows(&out)
+    };
+    let rows = run(&[], "out.csv");
+    // Exact rationals (weights 3/10 and 7/10):
+    // X: n = 3/10 * 10547 + 1 = 31651/10; d = 3/10 * 10^7 + 3 = 3000003;
+    //    rate = 31651 / 30000030.
+    // Y: n = 7/10 * 10547 = 73829/10; d = 7 * 10^6; rate = 73829 / 7e7 = 10547 / 1e7.
+    // Z: n = 315, d = 1000, rate = 315 / 1000.
+    let x = find(&rows, "X", None);
+    assert_eq!(x["n"], exact_decimal(31651, 10, 15));
+    assert_eq!(x["d"], "3000003");
+    assert_eq!(x["rate"], exact_decimal(31651, 30000030, 15));
+    let y = find(&rows, "Y", None);
+    assert_eq!(y["n"], exact_decimal(73829, 10, 15));
+    assert_eq!(y["rate"], exact_decimal(10547, 10_000_000, 15));
+    assert_eq!(y["rate"], "0.0010547");
+    let z = find(&rows, "Z", None);
+    assert_eq!((z["n"].as_str(), z["rate"].as_str()), ("315", "0.315"));
+    // A fixed format is still there when asked for.
+    let fixed = run(&["--decimals", "2"], "fixed.csv");
+    let z = find(&fixed, "Z", None);
+    assert_eq!((z["n"].as_str(), z["rate"].as_str()), ("315.00", "0.32"));
+    assert_eq!(find(&fixed, "Y", None)["rate"], "0.00");
+}
+
+#[test]
+fn the_exact_decimal_helper_rounds_as_written_by_hand() {
+    assert_eq!(exact_decimal(1, 3, 15), "0.333333333333333");
+    assert_eq!(exact_decimal(2, 3, 15), "0.666666666666667");
+    assert_eq!(exact_decimal(31651, 10, 15), "3165.1");
+    // 999999999999999.9 rounds up to sixteen digits.
+    assert_eq!(
+        exact_decimal(9_999_999_999_999_999, 10, 15),
+        "1000000000000000"
+    );
+}
+
+#[test]
+fn summing_a_column_named_like_a_rate_is_refused_unless_allowed() {
+    // Guards: --sum on rate, pct, share... was accepted and added rates up.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,unemployment_rate\nA,5\nB,7\n");
+    let base = |extra: &[&str]| {
+        let mut c = regionkey();
+        c.args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+            .args(["--sum", "unemployment_rate", "-q", "-o"])
+            .arg(dir.path().join("out.csv"))
+            .args(extra);
+        c
+    };
+    base(&[])
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("looks like a rate"))
+        .stderr(predicate::str::contains("--ratio"))
+        .stderr(predicate::str::contains("--allow-name unemployment_rate"));
+    base(&["--allow-name", "unemployment_rate"])
+        .assert()
+        .success();
+}
+
+#[test]
+fn a_missing_marker_is_added_to_na_not_put_in_its_place() {
+    // Guards: --missing X replaced the default NA, so NA became "not a number".
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n\nA,NA\nB,-\nC,5\n");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+        .args(["--sum", "n", "--missing", "-", "-q", "-o"])
+        .arg(&out)
+        .assert()
+        .success();
+    let rows = read_rows(&out);
+    // X = C's 5 (A unknown), coverage 0.25 (C's share of X); Y: nothing known.
+    let x = find(&rows, "X", None);
+    assert_eq!((num(x, "n"), num(x, "n_coverage")), (5.0, 0.25));
+    assert_eq!(find(&rows, "Y", None)["n"], "");
+}
+
+#[test]
+fn the_share_outside_every_target_is_reported_and_every_count_balances() {
+    // Guards: 1,571 cases in became 1,503.9 out with an empty report.
+    // A: 0.8 in X, 0.2 outside every target; B wholly in X; Q is unknown.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "cw.csv",
+        "from_code,to_code,weight,target_share,basis\nA,X,0.8,0.6,area\nA,,0.2,,area\nB,X,1,0.4,area\n",
+    );
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "code,year,cases\nA,2020,1000\nB,2020,571\nQ,2020,50\nA,2021,10\nB,2021,1\n",
+    );
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    // 2020: in 1621 = allocated 800 + 571 + outside 200 + not allocated (Q) 50.
+    // 2021: in 11 = allocated 8 + 1 + outside 2.
+    // Whole run: in 1632 = allocated 1380 + outside 202 + not allocated 50.
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+        .args(["--period-column", "year", "--sum", "cases", "-o"])
+        .arg(&out)
+        .arg("--report")
+        .arg(&report)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains(
+            "cases: in 1632 = allocated 1380 + outside every target 202 + not allocated 50",
+        ));
+    let items = read_rows(&report);
+    let outside: Vec<(&str, &str)> = items
+        .iter()
+        .filter(|r| r["kind"] == "outside")
+        .map(|r| (r["period"].as_str(), r["detail"].as_str()))
+        .collect();
+    assert_eq!(outside.len(), 2, "{items:?}");
+    assert_eq!(outside[0].0, "2020");
+    assert!(
+        outside[0].1.starts_with("cases: 200 of 1571 (12.73 %)"),
+        "{}",
+        outside[0].1
+    );
+    assert!(
+        outside[1].1.starts_with("cases: 2 of 11"),
+        "{}",
+        outside[1].1
+    );
+    let meta: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap())
+            .unwrap();
+    assert_eq!(meta["balance"]["cases"]["outside_every_target"], 202.0);
+    assert_eq!(meta["balance"]["cases"]["not_allocated"], 50.0);
+}
+
+#[test]
+fn a_users_crosswalk_of_another_vintage_does_not_make_shipped_sources_count_as_missing() {
+    // Guards: merged with the shipped 2017 -> 2023 table, a user's table from
+    // 2000s Alaska codes counted the shipped file's 2017 sources of the same
+    // land as missing (coverage 0.45-0.49 for units whose land all has data).
+    // 02280 Wrangell-Petersburg (2000s) became 02275 Wrangell and 02195
+    // Petersburg (Census Bureau change list); the weights are made up, the
+    // target shares say each new unit is wholly made of 02280.
+    let shipped = std::fs::read_to_string("crosswalks/us-counties-2017-2023.csv").unwrap();
+    assert!(
+        shipped.lines().any(|l| l.starts_with("02275,02275,")),
+        "the shipped table has 02275 as a 2017 source"
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "ak.csv",
+        "from_code,to_code,weight,target_share,basis\n02280,02195,0.6,1,area\n02280,02275,0.4,1,area\n",
+    );
+    let data = write(dir.path(), "data.csv", "code,n\n02280,100\n");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["-c", cw.to_str().unwrap(), "--sum", "n", "-q", "-o"])
+        .arg(&out)
+        .assert()
+        .success();
+    let rows = read_rows(&out);
+    for (code, n) in [("02195", 60.0), ("02275", 40.0)] {
+        let r = find(&rows, code, None);
+        assert_eq!((num(r, "n"), num(r, "n_coverage")), (n, 1.0), "{code}");
+    }
+}
+
+#[test]
+fn report_lines_agree_with_the_figures_beside_them() {
+    // Guards: "absent-source ... coverage is lower" for a unit whose
+    // coverage is 1, and "codes carried: 8" when 2 were.
+    // Connecticut: 2020 on the old county 09001 (Fairfield), 2022 on the
+    // planning regions it became (Census Bureau, 2022 change); weights as in
+    // the two-vintage test above.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "ct.csv",
+        "from_code,to_code,weight,target_share,basis
+09001,09120,0.22,0.98,area
+09001,09140,0.06,0.08,area
+09001,09190,0.72,0.85,area
+",
+    );
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "year,code,n\n2020,9001,1000\n2022,09120,300\n2022,09140,200\n2022,09190,700\n",
+    );
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["-c", cw.to_str().unwrap(), "--period-column", "year"])
+        .args(["--sum", "n", "-o"])
+        .arg(&out)
+        .arg("--report")
+        .arg(&report)
+        .assert()
+        .success()
+        // Only 09001 was carried; the other sources of the tables hold no data.
+        .stderr(predicate::str::contains(
+            "codes of the data carried from earlier vintages: 1",
+        ));
+    let rows = read_rows(&out);
+    let items = read_rows(&report);
+    // 09001 has no row in 2022, but the regions it became have theirs.
+    let line = items
+        .iter()
+        .find(|r| r["kind"] == "absent-source" && r["code"] == "09001" && r["period"] == "2022")
+        .expect("09001 is absent in 2022");
+    assert!(line["detail"].contains("no coverage is lower"), "{line:?}");
+    for t in ["09120", "09140", "09190"] {
+        assert_eq!(num(find(&rows, t, Some("2022")), "n_coverage"), 1.0, "{t}");
+    }
+    // Where an absent source does lower coverage, the line names the unit.
+    for r in items.iter().filter(|r| r["kind"] == "absent-source") {
+        if let Some(list) = r["detail"].split("the coverage of ").nth(1) {
+            for t in list.trim_end_matches(" is lower").split(", ") {
+                let p = (!r["period"].is_empty()).then_some(r["period"].as_str());
+                let rows_of_t: Vec<&Row> = rows
+                    .iter()
+                    .filter(|x| x["code"] == t && p.is_none_or(|p| x["year"] == p))
+                    .collect();
+                assert!(
+                    rows_of_t.iter().any(|x| num(x, "n_coverage") < 1.0),
+                    "{r:?} but {t} is fully covered"
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn a_code_column_of_names_or_a_state_column_of_years_is_refused_naming_it() {
+    // Guards: both exited 0 with every row unmatched.
+    let dir = tempfile::tempdir().unwrap();
+    let data = write(
+        dir.path(),
+        "data.csv",
+        "county,year,fips,n\nCook County,2020,17031,5\nKing County,2020,53033,7\n",
+    );
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["--code-column", "county", "--sum", "n", "-o"])
+        .arg(&out)
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("line 2"))
+        .stderr(predicate::str::contains("column \"county\""))
+        .stderr(predicate::str::contains("\"Cook County\""));
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["--code-column", "fips", "--state-column", "year"])
+        .args(["--sum", "n", "-o"])
+        .arg(&out)
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("column \"year\""))
+        .stderr(predicate::str::contains("\"2020\""));
+    // With a crosswalk of the user's own keys: no code is one of its sources.
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+        .args(["--code-column", "county", "--sum", "n", "-o"])
+        .arg(&out)
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("column \"county\""))
+        .stderr(predicate::str::contains("\"Cook County\""));
+    assert!(!out.exists());
+}
+
+#[test]
+fn the_output_format_follows_the_extension_and_keeps_the_users_column_names() {
+    // Guards: -o out.parquet wrote CSV text; a TSV input gave a TSV ".csv";
+    // the period column "Year" came out as "period".
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(
+        dir.path(),
+        "data.tsv",
+        "code\tYear\tn\nA\t2020\t10\nB\t2020\t20\nC\t2020\t30\n",
+    );
+    let run = |name: &str| {
+        let out = dir.path().join(name);
+        let a = regionkey()
+            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+            .args(["--period-column", "Year", "--sum", "n", "-q", "-o"])
+            .arg(&out)
+            .assert();
+        (out, a)
+    };
+    let (csv, a) = run("out.csv");
+    a.success();
+    let text = std::fs::read_to_string(&csv).unwrap();
+    // X = 10 * 0.6 + 30 = 36; Y = 10 * 0.4 + 20 = 24.
+    assert_eq!(
+        text,
+        "code,Year,n,n_coverage\nX,2020,36,1.000000\nY,2020,24,1.000000\n"
+    );
+    let (tsv, a) = run("out.tsv");
+    a.success();
+    assert_eq!(
+        std::fs::read_to_string(&tsv).unwrap(),
+        text.replace(',', "\t")
+    );
+    let (parquet, a) = run("out.parquet");
+    a.success();
+    let t = regionkey::io::table::read_table(&parquet, Default::default()).unwrap();
+    assert_eq!(t.headers, ["code", "Year", "n", "n_coverage"]);
+    assert_eq!(&t.records[0][0], "X");
+    assert_eq!(t.records[0][2].parse::<f64>().unwrap(), 36.0);
+    let (bad, a) = run("out.xlsx");
+    a.code(1)
+        .stderr(predicate::str::contains(".xlsx"))
+        .stderr(predicate::str::contains(".csv, .tsv or .parquet"));
+    assert!(!bad.exists());
+}
+
+#[test]
+fn an_added_column_that_collides_with_a_users_name_is_the_only_one_renamed() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n,n_coverage\nA,1,2\n");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+        .args(["--sum", "n,n_coverage", "-q", "-o"])
+        .arg(&out)
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert_eq!(
+        text.lines().next().unwrap(),
+        "code,n,rk_n_coverage,n_coverage,n_coverage_coverage"
+    );
+}
+
+#[test]
+fn the_sidecar_names_the_hash_of_its_output_and_stale_temporary_files_are_removed() {
+    // Guards: a killed run left a new CSV beside the old sidecar, and hidden
+    // temporary files that later runs never cleaned.
+    use sha2::Digest;
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let data = write(dir.path(), "data.csv", "code,n\nA,1\nB,2\n");
+    // A process id above the kernel's limit (4194304) is never running.
+    let stale = write(dir.path(), ".regionkey-4999999-a1b2c3.tmp", "half a file");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+        .args(["--sum", "n", "-q", "-o"])
+        .arg(&out)
+        .arg("--report")
+        .arg(dir.path().join("report.csv"))
+        .assert()
+        .success();
+    if cfg!(target_os = "linux") {
+        assert!(!stale.exists());
+    }
+    let meta: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap())
+            .unwrap();
+    let bytes = std::fs::read(&out).unwrap();
+    let sha: String = sha2::Sha256::digest(&bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    assert_eq!(meta["output"]["sha256"], sha);
+    assert_eq!(meta["output"]["bytes"], bytes.len());
+    // Nothing else is left in the folder.
+    let mut names: Vec<String> = std::fs::read_dir(dir.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    names.sort();
+    assert_eq!(
+        names,
+        [
+            "cw.csv",
+            "data.csv",
+            "out.csv",
+            "out.csv.json",
+            "report.csv"
+        ]
+    );
+}
+
+#[test]
+fn a_crosswalk_whose_codes_lost_their_leading_zero_still_carries_the_data() {
+    // Guards: an overlay of integer keys wrote 2201 for 02201, and apply
+    // --to-vintage --crosswalk then said "no crosswalk gives their weights:
+    // 02201" while the file held them. 02201 Prince of Wales-Outer
+    // Ketchikan was divided (Census Bureau change list) into 02198 and
+    // 02130; the weights are made up.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(
+        dir.path(),
+        "ak.csv",
+        "from_code,to_code,weight,target_share,basis\n2201,2198,0.75,1,area\n2201,2130,0.25,0.1,area\n",
+    );
+    let data = write(dir.path(), "data.csv", "code,n\n02201,400\n");
+    let out = dir.path().join("out.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["-c", cw.to_str().unwrap(), "--sum", "n", "-q", "-o"])
+        .arg(&out)
+        .assert()
+        .success();
+    let rows = read_rows(&out);
+    assert_eq!(num(find(&rows, "02198", None), "n"), 300.0);
+    assert_eq!(num(find(&rows, "02130", None), "n"), 100.0);
+}

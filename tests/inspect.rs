@@ -12,7 +12,9 @@ fn the_shipped_county_crosswalk_is_valid_and_shows_the_connecticut_change() {
     rk().args(["inspect", "crosswalks/us-counties-2017-2023.csv"])
         .assert()
         .success()
-        .stdout(predicate::str::contains("sources         3230"))
+        // 3231: every 2017 county, Falls Church city (51610) included
+        // through its identity row from the change history.
+        .stdout(predicate::str::contains("sources         3231"))
         .stdout(predicate::str::contains("02261 -> 02063 0.29"));
 }
 

@@ -1298,3 +1298,35 @@ fn a_parent_named_two_ways_in_a_reference_is_an_error_with_both_lines() {
         "{err}"
     );
 }
+
+#[test]
+fn a_state_column_a_users_reference_cannot_read_says_how_its_parents_are_written() {
+    let dir = tempfile::tempdir().unwrap();
+    let reference = dir.path().join("ref.csv");
+    // ISO 3166-2:IT codes of two provinces and their regions (pycountry 26.2.16).
+    std::fs::write(
+        &reference,
+        "code,name,parent\nIT-AL,Alessandria,IT-21\nIT-BA,Bari,IT-75\n",
+    )
+    .unwrap();
+    let a = regionkey()
+        .args([
+            "match",
+            "-",
+            "--name-column",
+            "n",
+            "--state-column",
+            "region",
+            "--reference",
+        ])
+        .arg(&reference)
+        .write_stdin("n,region\nAlessandria,Piemonte\nBari,Puglia\n")
+        .assert()
+        .failure()
+        .code(1);
+    let err = String::from_utf8_lossy(&a.get_output().stderr);
+    assert!(
+        err.contains("\"IT-21\"") && err.contains("parent_name") && err.contains("\"Piemonte\""),
+        "{err}"
+    );
+}

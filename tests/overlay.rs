@@ -45,10 +45,10 @@ fn run(sources: &[Unit], targets: &[Unit], min_share: f64, weighting: Weighting)
         sources,
         targets,
         &Options {
-            min_share,
             weighting,
+            ..Options::area(min_share)
         },
-        &|| {},
+        &|_| {},
     )
 }
 
@@ -349,6 +349,80 @@ fn the_rtree_finds_the_same_pairs_as_brute_force_on_the_county_layers() {
     assert_eq!(tree, brute);
 }
 
+/// Runs the grid validity check and geo's all-pairs check on every feature
+/// of a layer; returns how many features are invalid.
+fn validity_twins_agree(spec: &str) -> usize {
+    use regionkey::core::overlay::validity::{problems, problems_brute_force};
+    let l = read_layer(&LayerRequest {
+        spec: spec.to_string(),
+        key: None,
+        object: None,
+        key_option: "--from-key",
+        object_option: "--from-object",
+    })
+    .unwrap();
+    let mut invalid = 0;
+    for f in &l.features {
+        let polys: Vec<Polygon<f64>> = f
+            .polygons
+            .iter()
+            .filter_map(|rings| {
+                let mut closed: Vec<LineString<f64>> = rings
+                    .iter()
+                    .map(|r| {
+                        let mut ls = LineString::from(r.clone());
+                        ls.close();
+                        ls
+                    })
+                    // Rings with fewer than 3 distinct points are
+                    // dropped before the check (as `prepare` does).
+                    .filter(|ls| {
+                        let mut d = ls.0.clone();
+                        d.sort_by(|a, b| a.x.total_cmp(&b.x).then(a.y.total_cmp(&b.y)));
+                        d.dedup();
+                        d.len() >= 3
+                    })
+                    .collect();
+                (!closed.is_empty()).then(|| {
+                    let ext = closed.remove(0);
+                    Polygon::new(ext, closed)
+                })
+            })
+            .collect();
+        let mp = MultiPolygon::new(polys);
+        let fast = problems(&mp);
+        let slow = problems_brute_force(&mp);
+        assert_eq!(
+            fast.is_empty(),
+            slow.is_empty(),
+            "{spec} feature {} ({}): {fast:?} vs {slow:?}",
+            f.number,
+            f.key
+        );
+        invalid += usize::from(!fast.is_empty());
+    }
+    invalid
+}
+
+#[test]
+fn the_segment_grid_validity_check_agrees_with_geos_all_pairs_check_on_every_county() {
+    // Twin check: geo's own validation (all pairs of segments) decides the
+    // same valid/invalid verdict for every feature of both built-in layers.
+    let invalid = validity_twins_agree("builtin:counties-2017")
+        + validity_twins_agree("builtin:counties-2023");
+    assert!(invalid > 10, "{invalid}");
+}
+
+/// The same twin check on a layer named by RK_TWIN_LAYER (e.g. a densified
+/// layer from scripts/bench-overlay/densify.py; slow: geo's check is
+/// quadratic). `cargo test --test overlay -- --ignored twin_check_on`.
+#[test]
+#[ignore]
+fn twin_check_on_a_layer_from_the_environment() {
+    let spec = std::env::var("RK_TWIN_LAYER").expect("RK_TWIN_LAYER");
+    eprintln!("{} invalid features", validity_twins_agree(&spec));
+}
+
 #[test]
 fn connecticut_and_valdez_cordova_match_the_independent_reference() {
     // Reference: fixtures/geometry/reference-weights-ct-ak.csv (shapely +
@@ -425,25 +499,36 @@ fn rk() -> Command {
 
 #[test]
 fn regenerating_the_shipped_county_crosswalk_gives_the_same_bytes() {
+    // The shipped file is made from the repository root with
+    //   regionkey overlay builtin:counties-2017 builtin:counties-2023 \
+    //       --output crosswalks/us-counties-2017-2023.csv
+    // and its sidecar records that output path: run the same from a folder
+    // of the same shape.
     let dir = tempfile::tempdir().unwrap();
-    let out = dir.path().join("us-counties-2017-2023.csv");
-    rk().args([
-        "-q",
-        "overlay",
-        "builtin:counties-2017",
-        "builtin:counties-2023",
-        "--output",
-    ])
-    .arg(&out)
-    .assert()
-    .success();
+    std::fs::create_dir(dir.path().join("crosswalks")).unwrap();
+    rk().current_dir(dir.path())
+        .args([
+            "-q",
+            "overlay",
+            "builtin:counties-2017",
+            "builtin:counties-2023",
+            "--output",
+            "crosswalks/us-counties-2017-2023.csv",
+        ])
+        .assert()
+        .success();
+    let out = dir.path().join("crosswalks/us-counties-2017-2023.csv");
     let shipped = std::fs::read("crosswalks/us-counties-2017-2023.csv").unwrap();
     assert!(
         std::fs::read(&out).unwrap() == shipped,
         "the crosswalk differs from crosswalks/"
     );
     let meta = std::fs::read("crosswalks/us-counties-2017-2023.csv.json").unwrap();
-    assert!(std::fs::read(dir.path().join("us-counties-2017-2023.csv.json")).unwrap() == meta);
+    assert!(
+        std::fs::read(dir.path().join("crosswalks/us-counties-2017-2023.csv.json")).unwrap()
+            == meta,
+        "the sidecar differs from crosswalks/"
+    );
 }
 
 fn geojson_layer(dir: &std::path::Path) -> std::path::PathBuf {
@@ -480,8 +565,13 @@ fn a_geojson_overlay_writes_csv_parquet_and_metadata() {
     );
     let meta: serde_json::Value =
         serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
-    assert_eq!(meta["from"]["key"], "GEOID");
-    assert_eq!(meta["from"]["sha256"].as_str().unwrap().len(), 64);
+    assert_eq!(meta["command"], "overlay");
+    assert_eq!(meta["inputs"][0]["role"], "from");
+    assert_eq!(meta["inputs"][0]["key"], "GEOID");
+    assert_eq!(meta["inputs"][0]["sha256"].as_str().unwrap().len(), 64);
+    // The sidecar names the SHA-256 of the crosswalk it describes.
+    let sha = regionkey::io::output::sha256_file(&out).unwrap();
+    assert_eq!(meta["output"]["sha256"], sha.as_str());
     assert!(meta["caution"].as_str().unwrap().contains("estimates"));
     let pq = dir.path().join("xw.parquet");
     rk().args(["-q", "overlay"])
@@ -650,4 +740,289 @@ fn a_zipped_shapefile_is_read_in_memory() {
     assert!(text.contains("W,A1,1.000000000000"), "{text}");
     // nothing was extracted beside the zip
     assert!(!dir.path().join("zones").exists());
+}
+
+// ------------------------------------------------ nesting, history, population
+
+/// The shipped crosswalk as (from, to) -> (weight, basis).
+fn shipped() -> BTreeMap<(String, String), (f64, String)> {
+    let text = std::fs::read_to_string("crosswalks/us-counties-2017-2023.csv").unwrap();
+    text.lines()
+        .skip(1)
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (
+                (f[0].to_string(), f[1].to_string()),
+                (f[2].parse().unwrap(), f[4].to_string()),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn counties_never_cross_a_state_line_in_the_shipped_crosswalk() {
+    // A county's first two digits are its state (FIPS 6-4 / INCITS 31: county
+    // codes are assigned within states), and counties nest in states: a piece
+    // from one state into another is generalization noise of the 1:10m layers.
+    let xw = shipped();
+    let crossing: Vec<_> = xw
+        .keys()
+        .filter(|(f, t)| !t.is_empty() && f[..2] != t[..2])
+        .collect();
+    assert!(crossing.is_empty(), "{crossing:?}");
+    // The case that was shipped before: a share of Windham County (09015)
+    // and of New London County (09011) in Rhode Island.
+    assert!(!xw.contains_key(&("09011".into(), "44009".into())));
+    let meta: serde_json::Value = serde_json::from_slice(
+        &std::fs::read("crosswalks/us-counties-2017-2023.csv.json").unwrap(),
+    )
+    .unwrap();
+    let dropped = &meta["nesting"]["dropped_by_source"]["09011"]["44009"];
+    assert!(
+        dropped.as_f64().is_some_and(|w| w > 0.0 && w < 0.01),
+        "{dropped}"
+    );
+    // Weights of every source still sum to 1.
+    let mut sums: BTreeMap<&str, f64> = BTreeMap::new();
+    for ((f, _), (w, _)) in &xw {
+        *sums.entry(f).or_default() += w;
+    }
+    assert!(sums.values().all(|s| close(*s, 1.0, 1e-9)));
+}
+
+#[test]
+fn falls_church_collapses_at_1_10m_but_keeps_its_identity_row_from_the_history() {
+    // 51610 Falls Church city: in the reference since 1970, no change in the
+    // history between 2017 and 2023 (crosswalks/us-county-changes.csv).
+    let xw = shipped();
+    let row = &xw[&("51610".into(), "51610".into())];
+    assert_eq!(row.0, 1.0);
+    assert_eq!(row.1, "history");
+    let dir = tempfile::tempdir().unwrap();
+    rk().args([
+        "overlay",
+        "builtin:counties-2017",
+        "builtin:counties-2023",
+        "--output",
+    ])
+    .arg(dir.path().join("xw.csv"))
+    .assert()
+    .success()
+    .stderr(predicate::str::contains(
+        "the change history says 51610 continued unchanged, so it gets the identity row",
+    ));
+}
+
+fn write(dir: &std::path::Path, name: &str, text: &str) -> std::path::PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
+
+fn square_layer(
+    dir: &std::path::Path,
+    name: &str,
+    features: &[(&str, [f64; 4])],
+) -> std::path::PathBuf {
+    let f: Vec<String> = features
+        .iter()
+        .map(|(k, [x0, y0, x1, y1])| {
+            format!(
+                r#"{{"type":"Feature","properties":{{"code":"{k}"}},"geometry":{{"type":"Polygon","coordinates":[[[{x0},{y0}],[{x1},{y0}],[{x1},{y1}],[{x0},{y1}],[{x0},{y0}]]]}}}}"#
+            )
+        })
+        .collect();
+    write(
+        dir,
+        name,
+        &format!(
+            r#"{{"type":"FeatureCollection","features":[{}]}}"#,
+            f.join(",")
+        ),
+    )
+}
+
+#[test]
+fn units_nesting_in_parents_named_by_code_prefix_drop_pieces_across_parents() {
+    // Tracts 11 and 12 of county AA, tract 21 of county BB. The new layer's
+    // AA/BB line sits 0.005 degrees east of the old one (generalization):
+    // AA11 reaches 0.5 % into BB21 by area.
+    let dir = tempfile::tempdir().unwrap();
+    let old = square_layer(
+        dir.path(),
+        "old.geojson",
+        &[
+            ("AA11", [0.0, 0.0, 1.0, 1.0]),
+            ("BB21", [1.0, 0.0, 2.0, 1.0]),
+        ],
+    );
+    let new = square_layer(
+        dir.path(),
+        "new.geojson",
+        &[
+            ("AA11", [0.0, 0.0, 0.995, 1.0]),
+            ("BB21", [0.995, 0.0, 2.0, 1.0]),
+        ],
+    );
+    let out = dir.path().join("xw.csv");
+    let report = dir.path().join("report.csv");
+    let go = |extra: &[&str]| {
+        rk().args(["overlay"])
+            .arg(&old)
+            .arg(&new)
+            .args(["--from-key", "code", "--to-key", "code", "--min-share", "0"])
+            .args(extra)
+            .arg("--output")
+            .arg(&out)
+            .arg("--report")
+            .arg(&report)
+            .assert()
+            .success()
+    };
+    go(&[]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(
+        text.contains("AA11,BB21,"),
+        "without the option the piece stays: {text}"
+    );
+    go(&["--parent-digits", "2"]).stderr(predicate::str::contains(
+        "1 pieces in 1 sources crossed into another parent unit",
+    ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(!text.contains("AA11,BB21,"), "{text}");
+    assert!(
+        text.contains("AA11,AA11,1.000000000000,"),
+        "renormalized: {text}"
+    );
+    let rep = std::fs::read_to_string(&report).unwrap();
+    assert!(
+        rep.lines()
+            .any(|l| l.starts_with("cross-parent,AA11,BB21,0.0050")),
+        "{rep}"
+    );
+    let meta: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
+    assert_eq!(meta["options"]["parent_digits"], 2);
+    assert!(
+        meta["nesting"]["dropped_by_source"]["AA11"]["BB21"]
+            .as_f64()
+            .unwrap()
+            > 0.004
+    );
+}
+
+#[test]
+fn population_points_outside_every_source_and_area_fallbacks_are_counted_and_far_pieces_flagged() {
+    // Source S = [0,2]x[0,1] split by targets A (west half) and B (east
+    // half); all 90 people of S live in A, so the population weight of
+    // S->A is 0.9 against an area weight of 0.5, and of S->B 0.1 against
+    // 0.5: both "check". Source E has nobody (falls back to area). Two points with 7
+    // people lie outside every source.
+    let dir = tempfile::tempdir().unwrap();
+    let from = square_layer(
+        dir.path(),
+        "from.geojson",
+        &[("S", [0.0, 0.0, 2.0, 1.0]), ("E", [5.0, 0.0, 6.0, 1.0])],
+    );
+    let to = square_layer(
+        dir.path(),
+        "to.geojson",
+        &[
+            ("A", [0.0, 0.0, 1.0, 1.0]),
+            ("B", [1.0, 0.0, 2.0, 1.0]),
+            ("C", [5.0, 0.0, 6.0, 1.0]),
+        ],
+    );
+    let pop = write(
+        dir.path(),
+        "pop.csv",
+        "lon,lat,people\n0.5,0.5,90\n1.5,0.5,10\n10,10,3\n-20,5,4\n",
+    );
+    let out = dir.path().join("xw.csv");
+    let report = dir.path().join("report.csv");
+    rk().args(["overlay"])
+        .arg(&from)
+        .arg(&to)
+        .args([
+            "--from-key",
+            "code",
+            "--to-key",
+            "code",
+            "--weight",
+            "population",
+        ])
+        .arg("--population")
+        .arg(&pop)
+        .args(["--population-field", "people", "--output"])
+        .arg(&out)
+        .arg("--report")
+        .arg(&report)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains(
+            "2 population points (count 7) lie outside every source polygon",
+        ))
+        .stderr(predicate::str::contains(
+            "1 sources have no population and fell back to area",
+        ))
+        .stderr(predicate::str::contains("2 pieces flagged check"));
+    let rep = std::fs::read_to_string(&report).unwrap();
+    assert!(
+        rep.lines().any(|l| l.starts_with("check,S,A,0.9000")),
+        "{rep}"
+    );
+    assert!(
+        rep.lines().any(|l| l.starts_with("check,S,B,0.1000")),
+        "{rep}"
+    );
+    assert!(
+        rep.lines().any(|l| l.starts_with("area-fallback,E,")),
+        "{rep}"
+    );
+    let meta: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.path().join("xw.csv.json")).unwrap()).unwrap();
+    assert_eq!(meta["population_checks"]["points_outside_every_source"], 2);
+    assert_eq!(meta["population_checks"]["pieces_flagged"], 2);
+}
+
+#[test]
+fn integer_keys_of_a_county_layer_keep_their_leading_zero() {
+    // Numbers in the key field (as written by tools that store GEOIDs as
+    // integers): 1001 is county 01001 and 2201 is 02201 (FIPS 6-4 codes
+    // have five digits, the first two the state).
+    let dir = tempfile::tempdir().unwrap();
+    let f: Vec<String> = [(1001, 0.0), (2201, 1.0), (13121, 2.0), (36061, 3.0)]
+        .iter()
+        .map(|(k, x)| {
+            format!(
+                r#"{{"type":"Feature","properties":{{"GEOID":{k}}},"geometry":{{"type":"Polygon","coordinates":[[[{x},0],[{x1},0],[{x1},1],[{x},1],[{x},0]]]}}}}"#,
+                x1 = x + 1.0
+            )
+        })
+        .collect();
+    let layer = write(
+        dir.path(),
+        "ints.geojson",
+        &format!(
+            r#"{{"type":"FeatureCollection","features":[{}]}}"#,
+            f.join(",")
+        ),
+    );
+    let out = dir.path().join("xw.csv");
+    rk().arg("overlay")
+        .arg(&layer)
+        .arg(&layer)
+        .args(["--from-key", "GEOID", "--to-key", "GEOID", "--output"])
+        .arg(&out)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains(
+            "2 keys of field \"GEOID\" had lost their leading zeros (read as 5-digit county codes)",
+        ));
+    let text = std::fs::read_to_string(&out).unwrap();
+    assert!(text.contains("\n01001,01001,1.000000000000,"), "{text}");
+    assert!(text.contains("\n02201,02201,1.000000000000,"), "{text}");
+    assert!(!text.contains("\n1001,"), "{text}");
+    // What `apply` and `inspect` read back is the same code.
+    rk().arg("inspect").arg(&out).assert().success();
 }

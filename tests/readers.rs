@@ -499,3 +499,108 @@ fn features_sharing_a_key_are_refused_on_request() {
         ));
     assert_eq!(std::fs::read_to_string(&out).unwrap(), "old");
 }
+
+#[test]
+fn a_layer_without_features_is_refused_not_read_as_an_empty_crosswalk() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("empty.geojson");
+    std::fs::write(&p, r#"{"type":"FeatureCollection","features":[]}"#).unwrap();
+    let out = dir.path().join("xw.csv");
+    overlay_onto_itself(&p, &out, "ID")
+        .code(1)
+        .stderr(predicate::str::contains(
+            "empty.geojson: the layer holds no features",
+        ));
+    assert_eq!(std::fs::read_to_string(&out).unwrap(), "old");
+}
+
+// ---------------------------------------------------------------------------
+// Crosswalk problems name the file, line and column
+// ---------------------------------------------------------------------------
+
+fn two_crosswalks(dir: &Path, xy: &str, yz: &str) -> (PathBuf, PathBuf) {
+    let (a, b) = (dir.join("xy.csv"), dir.join("yz.csv"));
+    std::fs::write(&a, xy).unwrap();
+    std::fs::write(&b, yz).unwrap();
+    (a, b)
+}
+
+fn chain(a: &Path, b: &Path) -> assert_cmd::assert::Assert {
+    rk().arg("chain").arg(a).arg(b).args(["-o", "-"]).assert()
+}
+
+#[test]
+fn chain_names_the_line_of_a_repeated_pair_in_the_second_crosswalk() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = two_crosswalks(
+        dir.path(),
+        "from_code,to_code,weight\nA,Y1,1\n",
+        "from_code,to_code,weight\nY1,Z,0.5\nY1,Z,0.5\n",
+    );
+    chain(&a, &b)
+        .code(1)
+        .stderr(predicate::str::contains(
+            "yz.csv: line 3: column \"to_code\"",
+        ))
+        .stderr(predicate::str::contains("Y1 -> Z is on lines 2, 3"));
+}
+
+#[test]
+fn chain_names_the_lines_of_a_source_whose_weights_do_not_add_up() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = two_crosswalks(
+        dir.path(),
+        "from_code,to_code,weight\nB,Y1,1\nA,Y1,0.3\nA,Y1b,0.4\n",
+        "from_code,to_code,weight\nY1,Z,1\nY1b,Z,1\n",
+    );
+    chain(&a, &b)
+        .code(1)
+        .stderr(predicate::str::contains(
+            "xy.csv: line 3: column \"weight\"",
+        ))
+        .stderr(predicate::str::contains(
+            "source A (line(s) 3, 4) add up to 0.7",
+        ));
+}
+
+#[test]
+fn chain_names_the_line_of_a_target_missing_from_the_second_crosswalk() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = two_crosswalks(
+        dir.path(),
+        "from_code,to_code,weight\nA,Y1,0.5\nA,Y2,0.5\n",
+        "from_code,to_code,weight\nY1,Z,1\n",
+    );
+    chain(&a, &b)
+        .code(1)
+        .stderr(predicate::str::contains(
+            "xy.csv: line 3: column \"to_code\"",
+        ))
+        .stderr(predicate::str::contains("Y2"))
+        .stderr(predicate::str::contains("yz.csv"));
+}
+
+#[test]
+fn apply_names_the_line_of_a_weight_outside_zero_to_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = dir.path().join("neg.csv");
+    std::fs::write(
+        &cw,
+        "from_code,to_code,weight\n01001,01003,-0.5\n01001,01005,1.5\n",
+    )
+    .unwrap();
+    let data = dir.path().join("d.csv");
+    std::fs::write(&data, "code,n\n01001,10\n").unwrap();
+    rk().arg("apply")
+        .arg(&data)
+        .arg("--crosswalk")
+        .arg(&cw)
+        .args(["--sum", "n", "-o"])
+        .arg(dir.path().join("out.csv"))
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains(
+            "neg.csv: line 2: column \"weight\"",
+        ))
+        .stderr(predicate::str::contains("01001 -> 01003 is -0.5"));
+}

@@ -84,10 +84,11 @@ DESC_ABBREVIATIONS = {
 DESC_MISSPELLINGS = {
     "County": ["Cuonty", "Countey", "Conty", "Coutny", "Countty"],
     "Parish": ["Parrish", "Parsh", "Pariah"],
-    "Borough": ["Burrough", "Borogh", "Boro ugh"],
+    "Borough": ["Burrough", "Borogh", "Boroguh"],
     "Municipio": ["Munisipio", "Municipo"],
     "Census Area": ["Cencus Area", "Census Aera"],
-    "city": ["ctiy", "cty"],
+    # Not "cty": agencies write it for "county".
+    "city": ["ctiy", "cit"],
 }
 
 # State abbreviations of the Associated Press stylebook (from memory), used

@@ -467,16 +467,16 @@ impl Config {
         }
         let crosswalk = match &args.crosswalk {
             Some(p) => {
-                let cw = crosswalk_file::read_csv(p)?;
-                match check("crosswalk", &cw) {
+                let file = crosswalk_file::read_file(p)?;
+                match check("crosswalk", &file.crosswalk) {
                     Ok(()) => {}
                     Err(e @ ChainError::Unbalanced { .. }) => warn(format!(
-                        "{}: {e}; totals will not be conserved",
-                        p.display()
+                        "{}; totals will not be conserved",
+                        file.locate(p, &e, None)
                     )),
-                    Err(e) => return Err(Error::Usage(format!("{}: {e}", p.display()))),
+                    Err(e) => return Err(file.locate(p, &e, None)),
                 }
-                Some((p.clone(), cw))
+                Some((p.clone(), file.crosswalk))
             }
             None => None,
         };
@@ -1067,7 +1067,14 @@ pub fn execute(config: &Config) -> Result<Report> {
             } else {
                 None
             };
-            let user = config.crosswalk.as_ref().map(|(_, cw)| sorted(cw.clone()));
+            // Carrying to a county vintage: the user's table is of county
+            // codes, however few (a short table of 4-digit codes is not
+            // recognized as counties by its look alone).
+            let user = config.crosswalk.as_ref().map(|(_, cw)| {
+                let mut cw = cw.clone();
+                cw.normalize_codes_as(CodeForm::County, CodeForm::County);
+                sorted(cw)
+            });
             let c = carry_codes(
                 &by_code,
                 year,

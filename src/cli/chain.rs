@@ -10,10 +10,10 @@
 use std::path::PathBuf;
 
 use super::{say, Global};
-use crate::core::chain::{compose, drop_slivers, Trimmed};
+use crate::core::chain::{compose, drop_slivers, ChainError, Trimmed};
 use crate::core::crosswalk::Crosswalk;
 use crate::core::overlay::DEFAULT_MIN_SHARE;
-use crate::error::{Error, Location, Result};
+use crate::error::{Error, Result};
 use crate::io::crosswalk_file;
 use crate::io::output::{sidecar_path, Sidecar, SidecarInput, Staged, Target, Written, CAUTION};
 
@@ -105,24 +105,20 @@ impl Report {
 /// Reads both crosswalks, composes them, drops slivers, and writes the
 /// result (and its sidecar, last).
 pub fn execute(config: &Config) -> Result<Report> {
-    let first = crosswalk_file::read_csv(&config.first)?;
-    let second = crosswalk_file::read_csv(&config.second)?;
-    let mut composed = compose(&first, &second).map_err(|e| {
-        // Errors name the tables "first" and "second": name the files.
-        let e = e.to_string();
-        let (file, text) = if let Some(rest) = e.strip_prefix("first:") {
-            (&config.first, rest.trim().to_string())
-        } else if let Some(rest) = e.strip_prefix("second:") {
-            (&config.second, rest.trim().to_string())
-        } else {
-            (&config.first, e.clone())
-        };
-        let text = text.replace(
-            "the second,",
-            &format!("the second ({}),", config.second.display()),
-        );
-        Error::input(Location::file(file), text)
+    let first = crosswalk_file::read_file(&config.first)?;
+    let second = crosswalk_file::read_file(&config.second)?;
+    let mut composed = compose(&first.crosswalk, &second.crosswalk).map_err(|e| match &e {
+        // Name the file, line and column of the row at fault.
+        ChainError::Duplicate { table, .. }
+        | ChainError::BadWeight { table, .. }
+        | ChainError::Unbalanced { table, .. }
+            if *table == "second" =>
+        {
+            second.locate(&config.second, &e, None)
+        }
+        _ => first.locate(&config.first, &e, Some(&config.second)),
     })?;
+    let (first, second) = (first.crosswalk, second.crosswalk);
     let trimmed = drop_slivers(&mut composed, config.min_share);
     let mut staged = Staged::new();
     let parquet = matches!(&config.output, Target::File(p) if crosswalk_file::is_parquet_path(p));

@@ -17,6 +17,7 @@ use crate::core::matcher::{CodeForm, Matcher, Status};
 use crate::core::reference::Reference;
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::{read_reference_file, us_counties, us_states};
+use crate::io::composites::{as_aliases, read_composites_file};
 use crate::io::output::{write_to, Target};
 use crate::io::progress::Progress;
 use crate::io::review::{read_decisions, write_review, Decisions};
@@ -77,6 +78,12 @@ pub struct Args {
     /// valid_from, valid_to) instead of the built-in US one.
     #[arg(long, value_name = "FILE")]
     pub reference: Option<PathBuf>,
+
+    /// Your own composites (units reported as one): one row per composite with
+    /// `name` and `members` (codes joined by +), or a membership list with
+    /// `unit` and `group`; optional `state`. Added to the built-in ones (New York City).
+    #[arg(long, value_name = "FILE")]
+    pub composites: Option<PathBuf>,
 
     /// Decisions from an earlier review (a filled-in review file); they win over the matcher.
     #[arg(long, value_name = "FILE")]
@@ -234,6 +241,25 @@ pub fn configure(args: &Args, global: Global) -> Result<Config> {
             "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
         )));
     }
+    let source = match &args.composites {
+        None => source,
+        Some(path) => {
+            let named = read_composites_file(path)?;
+            let mut r = source.get().clone();
+            for c in named.items() {
+                if let Some(m) = c.members.iter().find(|m| r.eras(m).is_empty()) {
+                    return Err(Error::Usage(format!(
+                        "{}: composite {:?} ({}) names {m}, which is no unit of the reference",
+                        path.display(),
+                        c.name,
+                        c.source
+                    )));
+                }
+            }
+            r.aliases.extend(as_aliases(&named));
+            Source::File(r)
+        }
+    };
     Ok(Config {
         input: args.input.clone(),
         delimiter: args.delimiter,
@@ -337,12 +363,16 @@ fn folded(header: &str) -> String {
         .to_ascii_lowercase()
 }
 
-/// Distinct non-empty values of a column, in input order, with the row of
-/// their first appearance.
+/// Rows looked at by the column checks: enough to tell a column of years
+/// from a column of states, cheap on a table of millions.
+const CHECKED_ROWS: usize = 20_000;
+
+/// Distinct non-empty values of a column among the first [`CHECKED_ROWS`]
+/// rows, in input order, with the row of their first appearance.
 fn distinct_values(table: &Table, col: usize) -> Vec<(&str, usize)> {
     let mut seen: std::collections::HashSet<&str> = std::collections::HashSet::new();
     let mut out = Vec::new();
-    for (row, r) in table.records.iter().enumerate() {
+    for (row, r) in table.records.iter().enumerate().take(CHECKED_ROWS) {
         let v = r[col].trim();
         if !v.is_empty() && seen.insert(v) {
             out.push((v, row));
@@ -384,11 +414,20 @@ fn check_columns(
                 .find(|(v, _)| matcher.parent_of(v).is_none())
                 .copied()
                 .unwrap_or(values[0]);
+            let reference = config.source.get();
+            let hint = match (&config.source, reference.parents.first()) {
+                (Source::File(_), Some(p)) => format!(
+                    " (its parents are written like {:?}{}; a parent_name column in the reference lets the state column use names)",
+                    p.code,
+                    if p.name != p.code { format!(" or {:?}", p.name) } else { String::new() }
+                ),
+                _ => String::new(),
+            };
             return Err(Error::input(
                 table.location(row, col),
                 format!(
-                    "--state-column names a column whose values are not states of {} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
-                    config.source.get().label,
+                    "--state-column names a column whose values are not states of {}{hint} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
+                    reference.label,
                     values.len()
                 ),
             ));

@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 use crate::error::Error;
 
 pub mod apply;
+pub mod audit;
 pub mod chain;
 pub mod demo;
 pub mod group;
@@ -17,12 +18,14 @@ pub mod inspect;
 pub mod map;
 pub mod match_names;
 pub mod overlay;
+pub mod review_page;
 
 const EXIT_CODES: &str = "\
 Exit codes:
   0  finished (rows needing review are listed in the review file, not errors)
   1  bad input or options: the message names the file, line and column
   2  the command line could not be parsed
+  3  `audit --strict` found something off
 
 Allocated figures are estimates: they assume a value is spread evenly by area
 or by population within each unit. Where figures feed legal or funding
@@ -60,6 +63,10 @@ pub enum Command {
     History(history::Args),
     /// Draw a map of which units of a layer a table joined to, and how fully.
     Map(map::Args),
+    /// Write an offline HTML page to settle the names of a review file.
+    ReviewPage(review_page::Args),
+    /// Check a table's codes against a boundary layer before drawing it.
+    Audit(audit::Args),
     /// Build crosswalks both ways between counties and groups of counties from a membership list.
     Group(group::Args),
     /// Run the whole pipeline on built-in demo data.
@@ -87,6 +94,11 @@ pub fn main() -> ExitCode {
         Command::Map(a) => map::run(a, global),
         Command::Group(a) => group::run(a, global),
         Command::Demo(a) => demo::run(a, global),
+        Command::ReviewPage(a) => review_page::run(a, global),
+        Command::Audit(a) => match audit::run(a, global) {
+            Ok(audit::Verdict::Failed) => return ExitCode::from(3),
+            other => other.map(|_| ()),
+        },
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -34,8 +34,9 @@
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use crate::core::allocate::SourceValues;
-use crate::core::matcher::{Candidate, Matcher, Method, Resolution, Status};
+use crate::core::matcher::{Candidate, Matcher, Method, Resolution, Status, ACCEPT_SCORE};
 use crate::core::normalize::key;
+use crate::core::reference::Alias;
 
 /// The separator between member codes in one cell.
 pub const CODE_SEPARATOR: char = '+';
@@ -58,7 +59,7 @@ pub trait PartResolver {
 
 impl PartResolver for Matcher<'_> {
     fn resolve_part(&self, text: &str, state: Option<&str>) -> Resolution {
-        self.resolve(text, state)
+        self.resolve_single(text, state)
     }
 
     fn state_code(&self, text: &str) -> Option<String> {
@@ -72,13 +73,15 @@ impl PartResolver for Matcher<'_> {
 }
 
 /// True when the matcher's answer for the whole name says a unit has that
-/// name (matched, or in review among units of exactly that name or its
-/// successors): then the name is never read as a composite. Near misses
-/// (fuzzy candidates only) and unmatched names may still be composites.
+/// name: matched, or in review among units of exactly that name or its
+/// successors, or near enough one unit's name to be it misspelled (a
+/// candidate scoring at least [`ACCEPT_SCORE`]: "Winston-Salem city" is
+/// not Winston + Salem). Then the name is never read as a composite.
+/// Unmatched names and distant near misses may still be composites.
 pub fn names_a_unit(whole: &Resolution) -> bool {
     match whole.status {
         Status::Matched => true,
-        Status::Review => whole.candidates.iter().any(|c| c.score >= 1.0),
+        Status::Review => whole.candidates.iter().any(|c| c.score >= ACCEPT_SCORE),
         Status::Unmatched => false,
     }
 }
@@ -150,6 +153,38 @@ impl NamedComposites {
                 .collect()
         })
     }
+}
+
+/// Named composites from a reference's aliases: an alias whose code is
+/// several codes joined by [`CODE_SEPARATOR`] names a composite (this is
+/// how the built-in table and a user's `--composites` file reach the
+/// matcher). Its state is its members' common parent (`parent_of`), if
+/// they share one.
+pub fn from_aliases(
+    aliases: &[Alias],
+    parent_of: impl Fn(&str) -> Option<String>,
+) -> NamedComposites {
+    let mut items = Vec::new();
+    for a in aliases.iter().filter(|a| a.code.contains(CODE_SEPARATOR)) {
+        let members: Vec<String> = a
+            .code
+            .split(CODE_SEPARATOR)
+            .map(|c| c.trim().to_string())
+            .filter(|c| !c.is_empty())
+            .collect();
+        let parents: BTreeSet<Option<String>> = members.iter().map(|m| parent_of(m)).collect();
+        let state = match parents.into_iter().collect::<Vec<_>>().as_slice() {
+            [Some(p)] => Some(p.clone()),
+            _ => None,
+        };
+        items.push(NamedComposite {
+            name: a.alias.clone(),
+            state,
+            members,
+            source: a.note.clone(),
+        });
+    }
+    NamedComposites::new(items)
 }
 
 /// Joins member codes into one composite code, in code order.
@@ -563,8 +598,10 @@ fn read_parts(
             let r = part(i, j);
             match r.status {
                 Status::Matched => {}
-                Status::Review => all_matched = false,
-                Status::Unmatched => {
+                // Ambiguous among units of that name: the whole needs a
+                // person. Near misses only: the part is no unit's name.
+                Status::Review if names_a_unit(&r) => all_matched = false,
+                Status::Review | Status::Unmatched => {
                     any_unmatched = true;
                     break;
                 }

@@ -304,6 +304,18 @@ impl Crosswalk {
     pub fn normalize_codes(&mut self) -> (CodeForm, CodeForm, Vec<CodeRepair>) {
         let from_form = CodeForm::detect(self.rows.iter().map(|r| r.from_code.as_str()));
         let to_form = CodeForm::detect(self.rows.iter().filter_map(|r| r.to_code.as_deref()));
+        let repaired = self.normalize_codes_as(from_form, to_form);
+        (from_form, to_form, repaired)
+    }
+
+    /// Reads the codes of each side in a form known beforehand (county
+    /// codes, when carrying to a county vintage); a code that does not read
+    /// in that form is kept as written. Returns each code that changed.
+    pub fn normalize_codes_as(
+        &mut self,
+        from_form: CodeForm,
+        to_form: CodeForm,
+    ) -> Vec<CodeRepair> {
         let mut repaired = Vec::new();
         for (i, r) in self.rows.iter_mut().enumerate() {
             for (side, form, code) in [
@@ -324,7 +336,7 @@ impl Crosswalk {
                 }
             }
         }
-        (from_form, to_form, repaired)
+        repaired
     }
 }
 

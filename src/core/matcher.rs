@@ -41,6 +41,7 @@
 
 use std::collections::{BTreeMap, BTreeSet, HashMap};
 
+use crate::core::composite::{self, NamedComposites};
 use crate::core::fips::{CountyFips, StateFips};
 use crate::core::normalize::{compact, is_placeholder, key, tokens, Token};
 use crate::core::reference::{Change, ChangeKind, Reference, YearSpan};
@@ -304,6 +305,8 @@ pub struct Matcher<'r> {
     descriptions: HashMap<String, String>,
     changes_from: HashMap<String, Vec<&'r Change>>,
     changes_to: HashMap<String, Vec<&'r Change>>,
+    /// Named composites: aliases whose code is several codes joined by `+`.
+    composites: NamedComposites,
 }
 
 impl<'r> Matcher<'r> {
@@ -340,6 +343,7 @@ impl<'r> Matcher<'r> {
             descriptions,
             changes_from: HashMap::new(),
             changes_to: HashMap::new(),
+            composites: NamedComposites::default(),
         };
         for u in &reference.units {
             let desc = key(&u.description);
@@ -370,6 +374,9 @@ impl<'r> Matcher<'r> {
             m.entries.push(entry);
         }
         for a in &reference.aliases {
+            if a.code.contains(composite::CODE_SEPARATOR) {
+                continue;
+            }
             if let Some(&i) = m.by_code.get(&a.code) {
                 let list = m.by_alias.entry(key(&a.alias)).or_default();
                 if !list.contains(&i) {
@@ -405,6 +412,9 @@ impl<'r> Matcher<'r> {
                 .push(c);
             m.changes_to.entry(c.to_code.clone()).or_default().push(c);
         }
+        m.composites = composite::from_aliases(&reference.aliases, |c| {
+            m.by_code.get(c).and_then(|&i| m.entries[i].parent.clone())
+        });
         m
     }
 
@@ -513,8 +523,16 @@ impl<'r> Matcher<'r> {
         }
     }
 
-    /// Resolves one name (and the state column's value, if there is one).
+    /// Resolves one name (and the state column's value, if there is one);
+    /// a name made of several units no single unit has is read as a
+    /// composite ([`composite::read`]).
     pub fn resolve(&self, name: &str, state: Option<&str>) -> Resolution {
+        let whole = self.resolve_single(name, state);
+        composite::read(self, &self.composites, name, state, &whole).unwrap_or(whole)
+    }
+
+    /// Resolves one name as the name of a single unit.
+    pub fn resolve_single(&self, name: &str, state: Option<&str>) -> Resolution {
         let name = name.trim();
         let state = match state.map(str::trim).filter(|s| !s.is_empty()) {
             None => None,

@@ -2,6 +2,7 @@
 //! the terminal or knows about the command line.
 
 pub mod allocate;
+pub mod audit;
 pub mod chain;
 pub mod composite;
 pub mod crosswalk;

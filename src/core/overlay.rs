@@ -16,7 +16,8 @@
 //!    longitude as a whole, but its parts are small) gives the (source part,
 //!    target part) pairs whose boxes meet. [`candidate_pairs_brute_force`]
 //!    is its all-pairs twin for tests.
-//! 3. [`overlay`]: exact intersections with geo's boolean operations, in
+//! 3. [`overlay`]: exact intersections (i_overlay, see [`boolean`]) of the
+//!    parts cut down to where their boxes meet (see [`clip`]), in
 //!    parallel over sources; results are gathered in source order, so the
 //!    output does not depend on the number of threads.
 //!
@@ -24,9 +25,8 @@
 //! edges are straight in longitude/latitude, the same edges the clipper
 //! cuts along, so the pieces of a fully covered source sum to its area.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 
-use geo::algorithm::bool_ops::{BooleanOps, FillRule};
 use geo::{Area, BoundingRect, Coord, Intersects, LineString, MultiPolygon, Point, Polygon};
 use rayon::prelude::*;
 use rstar::primitives::GeomWithData;
@@ -34,6 +34,12 @@ use rstar::{RTree, AABB};
 
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::geodesy::WGS84;
+
+pub mod boolean;
+pub mod clip;
+pub mod validity;
+
+use clip::PolygonRuns;
 
 /// A ring as read: coordinates (longitude, latitude), closed or not.
 pub type Ring = Vec<Coord<f64>>;
@@ -208,15 +214,8 @@ fn repair_feature(
     if mp.0.is_empty() {
         return (mp, raw_area);
     }
-    use geo::Validation;
-    let mut messages = Vec::new();
-    mp.visit_validation(Box::new(|e| {
-        if messages.len() < 3 {
-            messages.push(e.to_string());
-        }
-        Ok::<(), ()>(())
-    }))
-    .ok();
+    let mut messages = validity::problems(&mp);
+    messages.truncate(3);
     if messages.is_empty() {
         return (mp, raw_area);
     }
@@ -224,7 +223,7 @@ fn repair_feature(
         "invalid ({}); repaired by a non-zero union of its rings",
         messages.join("; ")
     ));
-    let repaired = mp.union_with_fill_rule(&MultiPolygon::new(vec![]), FillRule::NonZero);
+    let repaired = boolean::union_non_zero(&mp);
     (repaired, raw_area)
 }
 
@@ -271,15 +270,13 @@ pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedL
         }
         let mut geometry = MultiPolygon::new(polys);
         if idx.len() > 1 {
-            use geo::Validation;
             let numbers: Vec<String> = idx
                 .iter()
                 .map(|&i| features[i].number.to_string())
                 .collect();
-            let joined = !geometry.is_valid();
+            let joined = !validity::problems(&geometry).is_empty();
             if joined {
-                geometry =
-                    geometry.union_with_fill_rule(&MultiPolygon::new(vec![]), FillRule::NonZero);
+                geometry = boolean::union_non_zero(&geometry);
             }
             for &i in &idx {
                 repairs[i].problems.push(format!(
@@ -425,6 +422,67 @@ pub struct Options {
     pub min_share: f64,
     /// Area or population weighting.
     pub weighting: Weighting,
+    /// Whether units nest in parents, so pieces that cross a parent's
+    /// boundary are generalization slivers.
+    pub nesting: Nesting,
+    /// Codes that the change history says continued unchanged from the
+    /// source vintage to the target vintage: when such a unit collapses in
+    /// both layers (too small for the layers' scale) it gets an identity
+    /// row with basis `history` instead of no row at all.
+    pub unchanged: BTreeSet<String>,
+}
+
+impl Options {
+    /// Area weighting with the default sliver rule, no nesting, no history.
+    pub fn area(min_share: f64) -> Options {
+        Options {
+            min_share,
+            weighting: Weighting::Area,
+            nesting: Nesting::None,
+            unchanged: BTreeSet::new(),
+        }
+    }
+}
+
+/// Whether units nest in parents named by their codes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Nesting {
+    /// No rule: pieces may cross any boundary.
+    None,
+    /// Units nest in parents named by the first N characters of their codes
+    /// (2: counties in states; 5: tracts in counties). A piece whose source
+    /// and target parents differ is dropped and the source renormalized,
+    /// unless such pieces make up half the source or more (then the layers
+    /// do not nest as claimed, the pieces are kept and the source is listed
+    /// in [`SourceSummary::not_nested`]).
+    CodePrefix(usize),
+}
+
+impl Nesting {
+    fn parent<'a>(&self, code: &'a str) -> Option<&'a str> {
+        match *self {
+            Nesting::None => None,
+            Nesting::CodePrefix(n) => Some(code.get(..n).unwrap_or(code)),
+        }
+    }
+}
+
+/// A population weight departing from the area weight of the same piece by
+/// more than this (in share of the source) is flagged "check" in the
+/// report: the population layer may be misplaced, sparse, or the piece
+/// holds a town on a small area. Our choice (no standard threshold).
+pub const POPULATION_CHECK_MARGIN: f64 = 0.25;
+
+/// A piece whose population weight departs from its area weight by more
+/// than [`POPULATION_CHECK_MARGIN`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct PopulationCheck {
+    /// Target code.
+    pub to: String,
+    /// Share of the source's population in the piece (before slivers).
+    pub population_weight: f64,
+    /// Share of the source's area in the piece.
+    pub area_weight: f64,
 }
 
 /// Relative size below which a remainder (the part of a source outside
@@ -455,6 +513,14 @@ pub struct SourceSummary {
     pub overlap_share: f64,
     /// The basis of its rows.
     pub basis: Basis,
+    /// Pieces dropped because they cross a parent boundary (see
+    /// [`Nesting`]): target code and share of the source.
+    pub cross_parent: Vec<(String, f64)>,
+    /// True when pieces outside the source's parent make up half of it or
+    /// more: they were kept and the nesting claim does not hold here.
+    pub not_nested: bool,
+    /// Pieces flagged "check" (population weighting only).
+    pub checks: Vec<PopulationCheck>,
 }
 
 /// Result of an overlay.
@@ -466,7 +532,16 @@ pub struct OverlayResult {
     pub sources: Vec<SourceSummary>,
     /// Targets that no source reaches.
     pub unreached_targets: Vec<String>,
+    /// Codes that collapsed in both layers and got an identity row from
+    /// the change history (see [`Options::unchanged`]).
+    pub history_rows: Vec<String>,
+    /// Population weighting with points: points (and their total count)
+    /// inside no source polygon. They weight nothing.
+    pub points_outside: Option<(usize, f64)>,
 }
+
+/// Rows, summary, targets hit and population points inside one source.
+type SourceOutcome = (Vec<CrosswalkRow>, SourceSummary, Vec<usize>, Vec<usize>);
 
 /// Pieces of one source before weighting.
 struct SourcePieces {
@@ -477,14 +552,30 @@ struct SourcePieces {
     overlap: f64,
 }
 
-fn intersect_source(source: &Unit, targets: &[Unit], tree: &PartTree, keep: bool) -> SourcePieces {
+fn intersect_source(
+    source: &Unit,
+    targets: &[Unit],
+    target_runs: &[Vec<PolygonRuns>],
+    tree: &PartTree,
+    keep: bool,
+) -> SourcePieces {
     let mut by_target: BTreeMap<usize, (f64, Vec<Polygon<f64>>)> = BTreeMap::new();
     let mut cands_all: Vec<Vec<(usize, usize)>> = Vec::with_capacity(source.geometry.0.len());
-    for sp in &source.geometry.0 {
+    let source_runs: Vec<PolygonRuns> = source.geometry.0.iter().map(PolygonRuns::new).collect();
+    for (sp, sr) in source.geometry.0.iter().zip(&source_runs) {
         let cands = tree.candidates(sp);
         for &(t, l) in &cands {
-            let tp = &targets[t].geometry.0[l];
-            let inter = sp.intersection(tp);
+            let tr = &target_runs[t][l];
+            let Some(r) = clip::meet(&sr.bbox, &tr.bbox) else {
+                continue;
+            };
+            let (Some(a), Some(b)) = (
+                clip::cut_to_box(sp, sr, &r),
+                clip::cut_to_box(&targets[t].geometry.0[l], tr, &r),
+            ) else {
+                continue;
+            };
+            let inter = boolean::intersection(a.as_ref(), b.as_ref());
             let a = WGS84.multi_polygon_area(&inter);
             if a > 0.0 {
                 let e = by_target.entry(t).or_default();
@@ -504,15 +595,19 @@ fn intersect_source(source: &Unit, targets: &[Unit], tree: &PartTree, keep: bool
     let (uncovered, uncovered_geometry, overlap) = if sum > source.area + noise || keep {
         let mut unc = 0.0;
         let mut geoms = Vec::new();
-        for (sp, cands) in source.geometry.0.iter().zip(&cands_all) {
+        for ((sp, sr), cands) in source.geometry.0.iter().zip(&source_runs).zip(&cands_all) {
+            // The targets cut down to the source part's box (see `clip`).
             let clip = MultiPolygon::new(
                 cands
                     .iter()
-                    .map(|&(t, l)| targets[t].geometry.0[l].clone())
+                    .filter_map(|&(t, l)| {
+                        let tr = &target_runs[t][l];
+                        let r = clip::meet(&sr.bbox, &tr.bbox)?;
+                        clip::cut_to_box(&targets[t].geometry.0[l], tr, &r).map(|c| c.into_owned())
+                    })
                     .collect(),
             );
-            let rest = MultiPolygon::new(vec![sp.clone()])
-                .difference_with_fill_rule(&clip, FillRule::NonZero);
+            let rest = boolean::difference(sp, &clip);
             unc += WGS84.multi_polygon_area(&rest);
             if keep {
                 geoms.extend(rest.0);
@@ -631,7 +726,7 @@ impl<'a> PopulationIndex<'a> {
             if self.poly_areas[i] <= 0.0 {
                 continue;
             }
-            let a = WGS84.multi_polygon_area(&mp.intersection(&ps[i].0));
+            let a = WGS84.multi_polygon_area(&boolean::intersection_multi(mp, &ps[i].0));
             total += ps[i].1 * a / self.poly_areas[i];
         }
         total
@@ -645,12 +740,13 @@ fn population_of_pieces(
     index: &PopulationIndex<'_>,
     source: &Unit,
     pieces: &SourcePieces,
-) -> (Vec<f64>, f64) {
+) -> (Vec<f64>, f64, Vec<usize>) {
     match index.layer {
         PopulationLayer::Points(pts) => {
             let mut per = vec![0.0; pieces.pieces.len()];
             let mut unc = 0.0;
-            for i in index.points_in(&source.geometry) {
+            let inside = index.points_in(&source.geometry);
+            for &i in &inside {
                 let p = Point(pts[i].0);
                 let hit = pieces
                     .pieces
@@ -661,7 +757,7 @@ fn population_of_pieces(
                     None => unc += pts[i].1,
                 }
             }
-            (per, unc)
+            (per, unc, inside)
         }
         PopulationLayer::Polygons(_) => {
             let per = pieces
@@ -673,13 +769,13 @@ fn population_of_pieces(
                 .uncovered_geometry
                 .as_ref()
                 .map_or(0.0, |g| index.spread_in(g));
-            (per, unc)
+            (per, unc, Vec::new())
         }
     }
 }
 
 /// Builds the crosswalk from `sources` to `targets`. `tick` is called once
-/// per source done (for a progress bar). Rows: one per (source, target)
+/// per source done with the number of rows it made (for a progress bar). Rows: one per (source, target)
 /// piece kept, plus a row with no target for the part of a source outside
 /// every target. Collapsed sources (zero area) get no rows; they are in the
 /// summaries with zero area.
@@ -687,9 +783,13 @@ pub fn overlay(
     sources: &[Unit],
     targets: &[Unit],
     options: &Options,
-    tick: &(dyn Fn() + Sync),
+    tick: &(dyn Fn(usize) + Sync),
 ) -> OverlayResult {
     let tree = PartTree::new(targets);
+    let target_runs: Vec<Vec<PolygonRuns>> = targets
+        .par_iter()
+        .map(|u| u.geometry.0.iter().map(PolygonRuns::new).collect())
+        .collect();
     let keep = matches!(options.weighting, Weighting::Population(_));
     let pop_index = match &options.weighting {
         Weighting::Population(layer) => Some(PopulationIndex::new(layer)),
@@ -706,31 +806,72 @@ pub fn overlay(
             })
             .collect()
     });
-    let per_source: Vec<(Vec<CrosswalkRow>, SourceSummary, Vec<usize>)> = sources
+    let per_source: Vec<SourceOutcome> = sources
         .par_iter()
         .map(|s| {
             let r = source_rows(
                 s,
                 targets,
+                &target_runs,
                 &tree,
                 keep,
                 pop_index.as_ref(),
                 target_pop.as_deref(),
                 options,
             );
-            tick();
+            tick(r.0.len());
             r
         })
         .collect();
     let mut reached = vec![false; targets.len()];
     let mut rows = Vec::new();
     let mut summaries = Vec::with_capacity(per_source.len());
-    for (r, s, hit) in per_source {
+    let mut in_some_source = match &options.weighting {
+        Weighting::Population(PopulationLayer::Points(pts)) => vec![false; pts.len()],
+        _ => Vec::new(),
+    };
+    for (r, s, hit, points) in per_source {
         for t in hit {
             reached[t] = true;
         }
+        for i in points {
+            in_some_source[i] = true;
+        }
         rows.extend(r);
         summaries.push(s);
+    }
+    let points_outside = match &options.weighting {
+        Weighting::Population(PopulationLayer::Points(pts)) => {
+            let outside = pts
+                .iter()
+                .zip(&in_some_source)
+                .filter(|(_, &inside)| !inside);
+            let (n, total) = outside.fold((0, 0.0), |(n, t), (p, _)| (n + 1, t + p.1));
+            Some((n, total))
+        }
+        _ => None,
+    };
+    // Units too small for both layers that the history says continued.
+    let mut history_rows = Vec::new();
+    for s in sources.iter().filter(|s| s.area <= 0.0) {
+        if !options.unchanged.contains(&s.key) {
+            continue;
+        }
+        let Ok(t) = targets.binary_search_by(|t| t.key.as_str().cmp(&s.key)) else {
+            continue;
+        };
+        if targets[t].area > 0.0 {
+            continue;
+        }
+        reached[t] = true;
+        history_rows.push(s.key.clone());
+        rows.push(CrosswalkRow {
+            from_code: s.key.clone(),
+            to_code: Some(s.key.clone()),
+            weight: 1.0,
+            target_share: Some(1.0),
+            basis: Basis::History,
+        });
     }
     let unreached_targets = targets
         .iter()
@@ -744,18 +885,22 @@ pub fn overlay(
         crosswalk,
         sources: summaries,
         unreached_targets,
+        history_rows,
+        points_outside,
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn source_rows(
     s: &Unit,
     targets: &[Unit],
+    target_runs: &[Vec<PolygonRuns>],
     tree: &PartTree,
     keep: bool,
     pop_index: Option<&PopulationIndex<'_>>,
     target_pop: Option<&[f64]>,
     options: &Options,
-) -> (Vec<CrosswalkRow>, SourceSummary, Vec<usize>) {
+) -> SourceOutcome {
     let mut summary = SourceSummary {
         key: s.key.clone(),
         area: s.area,
@@ -764,24 +909,37 @@ fn source_rows(
         uncovered_share: 0.0,
         overlap_share: 0.0,
         basis: Basis::Area,
+        cross_parent: Vec::new(),
+        not_nested: false,
+        checks: Vec::new(),
     };
     if s.area <= 0.0 {
-        return (Vec::new(), summary, Vec::new());
+        return (Vec::new(), summary, Vec::new(), Vec::new());
     }
-    let pieces = intersect_source(s, targets, tree, keep);
+    let pieces = intersect_source(s, targets, target_runs, tree, keep);
     summary.pieces = pieces.pieces.len();
     summary.overlap_share = pieces.overlap / s.area;
     // (target or None, amount, target share)
     let mut entries: Vec<(Option<usize>, f64, Option<f64>)> = Vec::new();
     let mut basis = Basis::Area;
+    let mut points = Vec::new();
     if let (Some(ix), Some(tp)) = (pop_index, target_pop) {
-        let (per, unc) = population_of_pieces(ix, s, &pieces);
+        let (per, unc, inside) = population_of_pieces(ix, s, &pieces);
+        points = inside;
         let total: f64 = per.iter().sum::<f64>() + unc;
         if total > 0.0 {
             basis = Basis::Population;
-            for ((t, _, _), p) in pieces.pieces.iter().zip(&per) {
+            for ((t, a, _), p) in pieces.pieces.iter().zip(&per) {
                 let share = (tp[*t] > 0.0).then(|| p / tp[*t]);
                 entries.push((Some(*t), p / total, share));
+                let area_weight = a / s.area;
+                if (p / total - area_weight).abs() > POPULATION_CHECK_MARGIN {
+                    summary.checks.push(PopulationCheck {
+                        to: targets[*t].key.clone(),
+                        population_weight: p / total,
+                        area_weight,
+                    });
+                }
             }
             entries.push((None, unc / total, None));
         } else {
@@ -797,6 +955,23 @@ fn source_rows(
     }
     summary.basis = basis;
     let hit: Vec<usize> = entries.iter().filter_map(|e| e.0).collect();
+    // Drop pieces across a parent boundary (see `Nesting`).
+    if let Some(parent) = options.nesting.parent(&s.key) {
+        let crossing = |t: &Option<usize>| {
+            t.is_some_and(|t| options.nesting.parent(&targets[t].key) != Some(parent))
+        };
+        let cross: f64 = entries.iter().filter(|e| crossing(&e.0)).map(|e| e.1).sum();
+        if cross >= 0.5 {
+            summary.not_nested = true;
+        } else if cross > 0.0 {
+            summary.cross_parent = entries
+                .iter()
+                .filter(|e| crossing(&e.0))
+                .map(|e| (targets[e.0.unwrap_or_default()].key.clone(), e.1))
+                .collect();
+            entries.retain(|e| !crossing(&e.0));
+        }
+    }
     // Drop slivers: small for the source and, when known, for the target.
     let mut dropped = 0.0;
     entries.retain(|(_, w, ts)| {
@@ -822,7 +997,7 @@ fn source_rows(
             basis,
         });
     }
-    (rows, summary, hit)
+    (rows, summary, hit, points)
 }
 
 /// Planar area of a multipolygon in square degrees (for tests and checks

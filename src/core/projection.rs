@@ -137,6 +137,63 @@ impl Inset {
     }
 }
 
+/// Fits projected points (y up) into a picture box (y down), keeping the
+/// aspect ratio: the drawing is as wide as the box allows, or as tall.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Frame {
+    x0: f64,
+    y1: f64,
+    scale: f64,
+    margin: f64,
+    width: f64,
+    height: f64,
+}
+
+impl Frame {
+    /// The frame that fits `points` into `width` x `height` with `margin`
+    /// on every side; `None` without points.
+    pub fn fit(points: &[(f64, f64)], width: f64, height: f64, margin: f64) -> Option<Frame> {
+        let (mut x0, mut y0, mut x1, mut y1) = (
+            f64::INFINITY,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::NEG_INFINITY,
+        );
+        for &(x, y) in points {
+            x0 = x0.min(x);
+            x1 = x1.max(x);
+            y0 = y0.min(y);
+            y1 = y1.max(y);
+        }
+        if !x0.is_finite() || !y0.is_finite() {
+            return None;
+        }
+        let (dx, dy) = ((x1 - x0).max(1e-12), (y1 - y0).max(1e-12));
+        let scale = ((width - 2.0 * margin) / dx).min((height - 2.0 * margin) / dy);
+        Some(Frame {
+            x0,
+            y1,
+            scale,
+            margin,
+            width: dx * scale + 2.0 * margin,
+            height: dy * scale + 2.0 * margin,
+        })
+    }
+
+    /// Picture coordinates of a projected point.
+    pub fn apply(&self, x: f64, y: f64) -> (f64, f64) {
+        (
+            self.margin + (x - self.x0) * self.scale,
+            self.margin + (self.y1 - y) * self.scale,
+        )
+    }
+
+    /// Width and height of the drawing.
+    pub fn size(&self) -> (f64, f64) {
+        (self.width, self.height)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -152,6 +209,14 @@ mod tests {
         let (x, y) = Albers::conus().project(-75.0, 35.0);
         assert!((x - 0.2952720).abs() < 5e-7, "x = {x}");
         assert!((y - 0.2416774).abs() < 5e-7, "y = {y}");
+    }
+
+    #[test]
+    fn a_frame_keeps_the_aspect_ratio_and_flips_y() {
+        let f = Frame::fit(&[(0.0, 0.0), (2.0, 1.0)], 100.0, 100.0, 0.0).unwrap();
+        assert_eq!(f.size(), (100.0, 50.0));
+        assert_eq!(f.apply(0.0, 1.0), (0.0, 0.0));
+        assert_eq!(f.apply(2.0, 0.0), (100.0, 50.0));
     }
 
     #[test]

@@ -167,14 +167,19 @@ fn build_counties() -> Result<Reference> {
             },
         })
         .collect();
-    let aliases = parse::<AliasRow>("builtin:reference/us/county-aliases.csv", ALIASES_CSV)?
-        .into_iter()
-        .map(|r| Alias {
-            code: r.code,
-            alias: r.alias,
-            note: r.note,
-        })
-        .collect();
+    let mut aliases: Vec<Alias> =
+        parse::<AliasRow>("builtin:reference/us/county-aliases.csv", ALIASES_CSV)?
+            .into_iter()
+            .map(|r| Alias {
+                code: r.code,
+                alias: r.alias,
+                note: r.note,
+            })
+            .collect();
+    // Named composites ("New York City") are aliases of several codes.
+    aliases.extend(crate::io::composites::as_aliases(
+        &crate::io::composites::builtin_composites()?,
+    ));
     Ok(Reference {
         label: "builtin:us-counties".into(),
         parents: states()?,

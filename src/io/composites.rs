@@ -7,8 +7,9 @@ use std::collections::BTreeMap;
 use std::path::Path;
 use std::sync::OnceLock;
 
-use crate::core::composite::{NamedComposite, NamedComposites, CODE_SEPARATOR};
+use crate::core::composite::{join_codes, NamedComposite, NamedComposites, CODE_SEPARATOR};
 use crate::core::fips::CountyFips;
+use crate::core::reference::Alias;
 use crate::error::{Error, Location, Result};
 use crate::io::table::{read_table, ReadOptions, Table};
 
@@ -54,6 +55,20 @@ pub fn builtin_composites() -> Result<NamedComposites> {
         });
     }
     Ok(NamedComposites::new(items))
+}
+
+/// Named composites as aliases of several codes joined by `+`: the form
+/// the matcher reads them in (see [`crate::core::composite::from_aliases`]).
+pub fn as_aliases(named: &NamedComposites) -> Vec<Alias> {
+    named
+        .items()
+        .iter()
+        .map(|c| Alias {
+            code: join_codes(&c.members),
+            alias: c.name.clone(),
+            note: c.source.clone(),
+        })
+        .collect()
 }
 
 /// One row of a membership list (unit -> group, optional share).

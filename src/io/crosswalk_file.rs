@@ -4,6 +4,7 @@
 use std::io::Write;
 use std::path::Path;
 
+use crate::core::chain::ChainError;
 use crate::core::crosswalk::{CodeRepair, Crosswalk, CrosswalkRow};
 use crate::core::fips::CodeForm;
 use crate::error::{Error, Location, Result};
@@ -47,6 +48,105 @@ pub struct CrosswalkFile {
     /// Codes that were not written in their column's form ("2201" among
     /// five-digit codes), as read.
     pub repairs: Vec<CodeRepair>,
+}
+
+impl CrosswalkFile {
+    /// Places a problem that [`crate::core::chain`] found in this
+    /// crosswalk's rows at its line and column of `path`, in the project's
+    /// words. `second` names the crosswalk whose sources an unlinked target
+    /// code is missing from.
+    pub fn locate(&self, path: &Path, e: &ChainError, second: Option<&Path>) -> Error {
+        let rows = &self.crosswalk.rows;
+        let lines_where = |f: &dyn Fn(&CrosswalkRow) -> bool| -> Vec<u64> {
+            rows.iter()
+                .zip(&self.lines)
+                .filter(|(r, _)| f(r))
+                .map(|(_, &l)| l)
+                .collect()
+        };
+        let list = |lines: &[u64]| {
+            let shown: Vec<String> = lines.iter().take(8).map(u64::to_string).collect();
+            if lines.len() > 8 {
+                format!("{}, ... ({} lines)", shown.join(", "), lines.len())
+            } else {
+                shown.join(", ")
+            }
+        };
+        let at = |line: Option<&u64>, column: &str| {
+            let l = Location::file(path).in_column(column);
+            match line {
+                Some(&n) => l.at_line(n),
+                None => l,
+            }
+        };
+        let to_text = |to: &str| {
+            if to.is_empty() {
+                "(outside every target)".to_string()
+            } else {
+                to.to_string()
+            }
+        };
+        match e {
+            ChainError::Duplicate { from, to, .. } => {
+                let lines = lines_where(&|r| {
+                    &r.from_code == from && r.to_code.as_deref().unwrap_or("") == to
+                });
+                Error::input(
+                    at(lines.get(1), "to_code"),
+                    format!(
+                        "the pair {from} -> {} is on lines {}; each pair must appear once (add \
+                         their weights into one row)",
+                        to_text(to),
+                        list(&lines)
+                    ),
+                )
+            }
+            ChainError::BadWeight {
+                from, to, weight, ..
+            } => {
+                let lines = lines_where(&|r| {
+                    &r.from_code == from
+                        && r.to_code.as_deref().unwrap_or("") == to
+                        && !(0.0..=1.0 + crate::core::chain::WEIGHT_SLACK).contains(&r.weight)
+                });
+                Error::input(
+                    at(lines.first(), "weight"),
+                    format!(
+                        "the weight of {from} -> {} is {weight}; a weight is a share from 0 to 1",
+                        to_text(to)
+                    ),
+                )
+            }
+            ChainError::Unbalanced { from, total, .. } => {
+                let lines = lines_where(&|r| &r.from_code == from);
+                Error::input(
+                    at(lines.first(), "weight"),
+                    format!(
+                        "the weights of source {from} (line(s) {}) add up to {total:.9}, not 1; \
+                         add the missing share as a row with an empty to_code (the part outside \
+                         every target), or rebuild the crosswalk",
+                        list(&lines)
+                    ),
+                )
+            }
+            ChainError::Unlinked { count, listed } => {
+                let codes: Vec<&str> = listed.split(", ").collect();
+                let lines =
+                    lines_where(&|r| r.to_code.as_deref().is_some_and(|t| codes.contains(&t)));
+                let second = second
+                    .map(|p| format!(" ({})", p.display()))
+                    .unwrap_or_default();
+                Error::input(
+                    at(lines.first(), "to_code"),
+                    format!(
+                        "{count} target code(s) of this crosswalk are not source codes of the \
+                         second{second}, so their share cannot be carried on: {listed}; are the \
+                         two tables of consecutive vintages (x->y and y->z)?"
+                    ),
+                )
+            }
+        }
+    }
 }
 
 /// Reads a crosswalk CSV (or Parquet). Structural problems (missing column,

@@ -6,6 +6,8 @@ pub mod composites;
 pub mod crosswalk_file;
 pub mod data;
 pub mod geo;
+pub mod guard;
+pub mod html;
 pub mod output;
 pub mod progress;
 pub mod review;

@@ -32,6 +32,13 @@ impl Progress {
         }
     }
 
+    /// Replaces the bar's label (e.g. a running count).
+    pub fn set_message(&self, message: String) {
+        if let Some(b) = &self.bar {
+            b.set_message(message);
+        }
+    }
+
     /// Removes the bar.
     pub fn finish(&self) {
         if let Some(b) = &self.bar {

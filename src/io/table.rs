@@ -289,9 +289,20 @@ fn csv_error(path: &Path, e: csv::Error, headers: &[String]) -> Error {
 fn read_parquet(path: &Path, bytes: Vec<u8>) -> Result<Table> {
     use polars::prelude::*;
     let cursor = std::io::Cursor::new(bytes);
-    let df = ParquetReader::new(cursor)
-        .finish()
-        .map_err(|e| Error::input(Location::file(path), format!("cannot read as Parquet: {e}")))?;
+    // The Parquet decoder panics on some damaged files: guard it.
+    let df = crate::io::guard::catch(|| ParquetReader::new(cursor).finish())
+        .map_err(|_| {
+            Error::input(
+                Location::file(path),
+                "cannot read as Parquet: the file is damaged (its decoder stopped)",
+            )
+        })?
+        .map_err(|_| {
+            Error::input(
+                Location::file(path),
+                "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+            )
+        })?;
     let headers: Vec<String> = df
         .get_column_names()
         .iter()

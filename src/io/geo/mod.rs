@@ -13,6 +13,7 @@ use geo::Coord;
 use serde_json::Value;
 use sha2::{Digest, Sha256};
 
+use crate::core::fips::CodeForm;
 use crate::core::overlay::{RawFeature, Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -84,6 +85,42 @@ pub struct Layer {
     /// What the reader wants the user to know (records left out, ...),
     /// each naming the file; see [`Layer::notes`].
     pub warnings: Vec<String>,
+}
+
+/// How a layer's keys were read: the code form found in them and how many
+/// keys had a lost leading zero (or a spreadsheet tail) repaired.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct KeyReading {
+    /// The form detected ([`CodeForm::detect`]).
+    pub form: CodeForm,
+    /// Keys that were repaired (e.g. 2201 from an integer field -> 02201).
+    pub repaired: usize,
+}
+
+impl Layer {
+    /// Reads every key through the one code parser (`core::fips`): the form
+    /// is detected from all keys of the layer, so integer keys of a county
+    /// layer get their leading zero back ("1001" -> "01001") and user keys
+    /// that are not codes stay as written.
+    pub fn normalize_keys(&mut self) -> Result<KeyReading> {
+        let form = CodeForm::detect(self.features.iter().map(|f| f.key.as_str()));
+        let mut repaired = 0;
+        for f in &mut self.features {
+            let (code, repairs) = form.read(&f.key).map_err(|e| {
+                Error::input(
+                    Location::file(&self.path)
+                        .at_feature(f.number)
+                        .in_column(&self.key),
+                    format!("the key {:?} is not a code like the others: {e}", f.key),
+                )
+            })?;
+            if !repairs.is_empty() {
+                repaired += 1;
+            }
+            f.key = code.into_string();
+        }
+        Ok(KeyReading { form, repaired })
+    }
 }
 
 /// Pairs each feature's key with its polygons, numbering features from 1
@@ -247,23 +284,15 @@ pub fn check_coord(location: Location, detail: &str, c: Coord<f64>) -> Result<()
 /// dependency's) becomes an error naming the file instead of ending the
 /// program.
 pub fn guarded<T>(path: &Path, read: impl FnOnce() -> Result<T>) -> Result<T> {
-    match std::panic::catch_unwind(std::panic::AssertUnwindSafe(read)) {
-        Ok(r) => r,
-        Err(payload) => {
-            let what = payload
-                .downcast_ref::<&str>()
-                .map(|s| s.to_string())
-                .or_else(|| payload.downcast_ref::<String>().cloned())
-                .unwrap_or_default();
-            Err(Error::input(
-                Location::file(path),
-                format!(
-                    "the layer could not be read ({what}); the file is damaged or in a form \
-                     regionkey does not read"
-                ),
-            ))
-        }
-    }
+    crate::io::guard::catch(read).unwrap_or_else(|what| {
+        Err(Error::input(
+            Location::file(path),
+            format!(
+                "the layer could not be read ({what}); the file is damaged or in a form \
+                 regionkey does not read"
+            ),
+        ))
+    })
 }
 
 /// What to do with several features that carry the same key.
@@ -372,6 +401,12 @@ pub fn resolve_keys(
     numbers: &[u64],
     values: impl Fn(usize, &str) -> Option<String>,
 ) -> Result<(Vec<String>, String)> {
+    if ids.is_empty() {
+        return Err(Error::input(
+            Location::file(path),
+            "the layer holds no features; a boundary layer needs at least one unit",
+        ));
+    }
     let mut keys = Vec::with_capacity(ids.len());
     match &req.key {
         None => {

@@ -48,6 +48,31 @@ pub fn read(path: &Path, req: &LayerRequest) -> Result<Layer> {
     super::guarded(path, || read_unguarded(path, req))
 }
 
+/// Reads a Shapefile held in memory: the bytes of its .shp, .shx (if any)
+/// and .dbf; `path` names the .shp in messages (the others are named by
+/// its stem with their extensions). Used where the files are not on disk
+/// (fuzzing, embedded layers).
+pub fn read_bytes(
+    path: &Path,
+    shp: Vec<u8>,
+    shx: Option<Vec<u8>>,
+    dbf: Vec<u8>,
+    req: &LayerRequest,
+) -> Result<Layer> {
+    let part = |ext: &str, bytes: Vec<u8>| Part {
+        path: path.with_extension(ext),
+        bytes,
+    };
+    let parts = Parts {
+        shp: part("shp", shp),
+        shx: shx.map(|b| part("shx", b)),
+        dbf: part("dbf", dbf),
+        prj: None,
+        cpg: None,
+    };
+    super::guarded(path, || from_parts(path, parts, req))
+}
+
 fn read_unguarded(path: &Path, req: &LayerRequest) -> Result<Layer> {
     let parts = if path
         .extension()
@@ -57,6 +82,10 @@ fn read_unguarded(path: &Path, req: &LayerRequest) -> Result<Layer> {
     } else {
         from_files(path)?
     };
+    from_parts(path, parts, req)
+}
+
+fn from_parts(path: &Path, parts: Parts, req: &LayerRequest) -> Result<Layer> {
     if let Some(prj) = &parts.prj {
         let text = String::from_utf8_lossy(&prj.bytes);
         if text.trim_start().to_uppercase().starts_with("PROJCS") || text.contains("PROJCRS") {
