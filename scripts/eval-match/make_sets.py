@@ -500,20 +500,23 @@ def main():
     def numbered(rows):
         return [[i + 1] + r for i, r in enumerate(rows)]
 
-    write("us-counties.csv", header, numbered(us_counties(random.Random(SEED), states)))
-    ref, rows = italy(random.Random(SEED + 1))
-    write("it-provinces-reference.csv", ["code", "name", "parent", "parent_name"], ref)
-    write("it-provinces.csv", header, numbered(rows))
-    ref, rows = france(random.Random(SEED + 2))
-    write("fr-departements-reference.csv", ["code", "name", "description", "parent", "parent_name"], ref)
-    write("fr-departements.csv", header, numbered(rows))
-    ref, rows = czechia(random.Random(SEED + 3))
-    write("cz-districts-reference.csv", ["code", "name", "parent", "parent_name"], ref)
-    write("cz-districts.csv", header, numbered(rows))
-    ref, rows = us_places(random.Random(SEED + 4), states)
-    write("us-places-reference.csv", ["code", "name", "parent", "parent_name"], ref)
-    write("us-places.csv", header, numbered(rows))
-
+    # The sets, and a second draw of each with another seed (the same rules,
+    # other variants and typos): a rule tuned to the instances of the first
+    # draw rather than to the kind of slip shows as a gap between the two.
+    for suffix, seed in [("", SEED), ("-holdout", SEED + 100)]:
+        write(f"us-counties{suffix}.csv", header, numbered(us_counties(random.Random(seed), states)))
+        ref, rows = italy(random.Random(seed + 1))
+        write("it-provinces-reference.csv", ["code", "name", "parent", "parent_name"], ref)
+        write(f"it-provinces{suffix}.csv", header, numbered(rows))
+        ref, rows = france(random.Random(seed + 2))
+        write("fr-departements-reference.csv", ["code", "name", "description", "parent", "parent_name"], ref)
+        write(f"fr-departements{suffix}.csv", header, numbered(rows))
+        ref, rows = czechia(random.Random(seed + 3))
+        write("cz-districts-reference.csv", ["code", "name", "parent", "parent_name"], ref)
+        write(f"cz-districts{suffix}.csv", header, numbered(rows))
+        ref, rows = us_places(random.Random(seed + 4), states)
+        write("us-places-reference.csv", ["code", "name", "parent", "parent_name"], ref)
+        write(f"us-places{suffix}.csv", header, numbered(rows))
 
 if __name__ == "__main__":
     main()

@@ -14,6 +14,7 @@ use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use rayon::prelude::*;
 
+use crate::core::composite;
 use crate::core::decisions::{Choice, Decision, Decisions, Years, NONE};
 use crate::core::fips;
 use crate::core::matcher::{Candidate, CodeForm, Matcher, Method, Resolution, Status};
@@ -93,42 +94,26 @@ impl<'r> Matchers<'r> {
             Choice::NotAUnit => return Ok(self.get(vintage).decided(None).expect("none resolves")),
             Choice::Codes(codes) => codes,
         };
-        let mut parts: Vec<Resolution> = Vec::with_capacity(codes.len());
-        for c in codes {
-            parts.push(self.decide_one(vintage, c, d, any_vintage)?);
+        if let [code] = codes.as_slice() {
+            return self.decide_one(vintage, code, d, any_vintage);
         }
-        if parts.len() == 1 {
-            return Ok(parts.remove(0));
-        }
-        // A unit made of several units: members in code order, joined by +.
-        parts.sort_by(|a, b| a.code.cmp(&b.code));
-        parts.dedup_by(|a, b| a.code == b.code);
-        let members: Vec<String> = parts
-            .iter()
-            .map(|p| {
-                format!(
-                    "{} {}",
-                    p.code.as_deref().unwrap_or(""),
-                    p.name.as_deref().unwrap_or("")
-                )
-            })
-            .collect();
-        let join = |f: &dyn Fn(&Resolution) -> String, sep: &str| {
-            parts.iter().map(f).collect::<Vec<String>>().join(sep)
+        // A unit made of several units (core::composite writes it).
+        composite::decided(self.get(vintage), codes)
+            .map_err(|code| self.not_a_unit(vintage, &code, d))
+    }
+
+    fn not_a_unit(&self, vintage: u16, code: &str, d: &Decision) -> Error {
+        let years = if d.years.is_all() {
+            String::new()
+        } else {
+            format!(" (the decision's years: {})", d.years)
         };
-        Ok(Resolution {
-            status: Status::Matched,
-            code: Some(join(&|p| p.code.clone().unwrap_or_default(), "+")),
-            name: Some(join(&|p| p.name.clone().unwrap_or_default(), " + ")),
-            method: Some(Method::Decision),
-            score: 1.0,
-            note: format!(
-                "decided: made of {} units: {}",
-                parts.len(),
-                members.join(", ")
+        Error::input(
+            d.location.clone(),
+            format!(
+                "{code:?} is not a unit in {vintage}{years} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched, or narrow the decision's years"
             ),
-            candidates: Vec::new(),
-        })
+        )
     }
 
     fn decide_one(
@@ -155,17 +140,7 @@ impl<'r> Matchers<'r> {
                 }
             }
         }
-        let years = if d.years.is_all() {
-            String::new()
-        } else {
-            format!(" (the decision's years: {})", d.years)
-        };
-        Err(Error::input(
-            d.location.clone(),
-            format!(
-                "{code:?} is not a unit in {vintage}{years} (nor in another vintage of the reference); write a code of that vintage, or `{NONE}` to leave the name unmatched, or narrow the decision's years"
-            ),
-        ))
+        Err(self.not_a_unit(vintage, code, d))
     }
 }
 
@@ -631,7 +606,7 @@ mod tests {
         let r = &m.keys[0].resolution;
         assert_eq!(r.code.as_deref(), Some("01001+01002"));
         assert_eq!(r.status, Status::Matched);
-        assert!(r.note.contains("01001 Baker County"), "{}", r.note);
+        assert!(r.note.contains("Baker County (01001)"), "{}", r.note);
     }
 
     #[test]
