@@ -1101,3 +1101,62 @@ fn a_crosswalk_whose_codes_lost_their_leading_zero_still_carries_the_data() {
     assert_eq!(num(find(&rows, "02198", None), "n"), 300.0);
     assert_eq!(num(find(&rows, "02130", None), "n"), 100.0);
 }
+
+#[test]
+fn the_data_is_read_as_every_table_is_read() {
+    // Guards: the data reader disagreed with the table reader on line
+    // numbers after quoted line breaks and with CRLF, on Latin-1, on blank
+    // lines and on column-name case, and let NUL bytes through.
+    let dir = tempfile::tempdir().unwrap();
+    let cw = write(dir.path(), "cw.csv", CROSSWALK);
+    let out = dir.path().join("out.csv");
+    let run = |name: &str, bytes: &[u8], column: &str| {
+        let data = dir.path().join(name);
+        std::fs::write(&data, bytes).unwrap();
+        regionkey()
+            .args(["apply", data.to_str().unwrap(), "-c", cw.to_str().unwrap()])
+            .args(["--period-column", column, "--sum", "n", "-q", "-o"])
+            .arg(&out)
+            .assert()
+    };
+    // A quoted line break (lines 2-3), CRLF endings and a blank line (5):
+    // the bad value is on line 6.
+    run(
+        "crlf.csv",
+        b"code,Year,n,note\r\nA,2020,1,\"two\r\nlines\"\r\nB,2020,2,x\r\n\r\nC,2020,lots,y\r\n",
+        "year",
+    )
+    .code(1)
+    .stderr(predicate::str::contains("line 6"))
+    .stderr(predicate::str::contains("column \"n\""));
+    // The same without the bad value: blank lines are not rows, and
+    // --period-column year finds "Year" and keeps its name.
+    run(
+        "ok.csv",
+        b"code,Year,n,note\r\nA,2020,1,\"two\r\nlines\"\r\nB,2020,2,x\r\n\r\nC,2020,3,y\r\n",
+        "year",
+    )
+    .success();
+    let rows = read_rows(&out);
+    assert_eq!(rows.len(), 2);
+    let x = rows.iter().find(|r| r["code"] == "X").unwrap();
+    // X = 1 * 0.6 + 3 = 3.6, under the file's own "Year".
+    assert_eq!((x["Year"].as_str(), num(x, "n")), ("2020", 3.6));
+    // Latin-1 periods are decoded as the table reader decodes them.
+    run("latin1.csv", b"code,period,n\nA,Ene\xf1o,1\n", "period")
+        .success()
+        .stderr(predicate::str::contains("Latin-1"));
+    assert!(std::fs::read_to_string(&out)
+        .unwrap()
+        .contains("Ene\u{f1}o"));
+    // NUL bytes: an error naming line and column.
+    run(
+        "nul.csv",
+        b"code,period,n\nA,2020,1\nB,2020,\x002\n",
+        "period",
+    )
+    .code(1)
+    .stderr(predicate::str::contains("line 3"))
+    .stderr(predicate::str::contains("column \"n\""))
+    .stderr(predicate::str::contains("NUL"));
+}

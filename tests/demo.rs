@@ -144,3 +144,98 @@ fn the_demo_writes_the_same_bytes_twice() {
         assert_eq!(std::fs::read(dir.join(f)).unwrap(), bytes, "{f} differs");
     }
 }
+
+/// The `regionkey ...` commands of the README's `sh` blocks, each split
+/// into arguments (continuation lines joined, double quotes respected).
+fn readme_commands() -> Vec<Vec<String>> {
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md")).unwrap();
+    let mut commands = Vec::new();
+    let mut in_block = false;
+    let mut current = String::new();
+    for line in readme.lines() {
+        if line.trim_start().starts_with("```") {
+            in_block = line.trim_start() == "```sh";
+            continue;
+        }
+        if !in_block {
+            continue;
+        }
+        let line = line.split(" #").next().unwrap_or("").trim_end();
+        current.push_str(line.trim_end_matches('\\'));
+        current.push(' ');
+        if line.ends_with('\\') {
+            continue;
+        }
+        let text = std::mem::take(&mut current);
+        let mut args = Vec::new();
+        let mut arg = String::new();
+        let mut quoted = false;
+        for c in text.chars() {
+            match c {
+                '"' => quoted = !quoted,
+                c if c.is_whitespace() && !quoted => {
+                    if !arg.is_empty() {
+                        args.push(std::mem::take(&mut arg));
+                    }
+                }
+                c => arg.push(c),
+            }
+        }
+        if args.first().map(String::as_str) == Some("regionkey") {
+            commands.push(args);
+        }
+    }
+    commands
+}
+
+#[test]
+fn the_readmes_examples_run_as_written_on_the_demos_outputs() {
+    // Guards: `apply` on matched.csv failed on "n/a" unless --missing n/a
+    // was added to the README's command. Each example runs in a folder
+    // holding demo-output/, in the README's order; an example that reads a
+    // user's own file (old-districts.shp, tracts-2010.csv) is skipped, and
+    // every other one must succeed.
+    let dir = tempfile::tempdir().unwrap();
+    run_demo(&dir.path().join("demo-output"));
+    let outputs = ["--output", "-o", "--review", "--report"];
+    let (mut ran, mut skipped) = (Vec::new(), Vec::new());
+    for args in readme_commands() {
+        let reads_missing_file = args.iter().enumerate().skip(2).any(|(i, a)| {
+            let is_file = [".csv", ".shp", ".geojson", ".json", ".zip"]
+                .iter()
+                .any(|e| a.ends_with(e));
+            is_file && !outputs.contains(&args[i - 1].as_str()) && !dir.path().join(a).exists()
+        });
+        let line = args.join(" ");
+        if reads_missing_file {
+            skipped.push(line);
+            continue;
+        }
+        let out = Command::cargo_bin("regionkey")
+            .unwrap()
+            .args(&args[1..])
+            .current_dir(dir.path())
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "README example failed: {line}\n{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        ran.push(args[1].clone());
+    }
+    for command in ["match", "apply", "map", "history", "overlay", "inspect"] {
+        assert!(
+            ran.iter().any(|c| c == command),
+            "no `{command}` example ran: {ran:?}"
+        );
+    }
+    assert!(
+        skipped
+            .iter()
+            .all(|s| s.contains("old-districts.shp") || s.contains("tracts-2010.csv")),
+        "skipped: {skipped:?}"
+    );
+    assert!(dir.path().join("harmonized.csv").exists());
+}

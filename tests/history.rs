@@ -149,3 +149,28 @@ fn history_of_an_unknown_name_says_so() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("Atlantis"));
 }
+
+#[test]
+fn names_are_read_as_the_matcher_reads_them() {
+    // Guards: `history "Dona Ana"` failed where `match` finds it. Doña Ana
+    // County, NM is 35013 and St. Louis city, MO 29510 (Census Bureau FIPS).
+    for (query, code) in [
+        ("Dona Ana", "35013"),
+        ("DOÑA ANA COUNTY", "35013"),
+        ("Saint Louis City", "29510"),
+        ("6037.0", "06037"),
+    ] {
+        let out = Command::cargo_bin("regionkey")
+            .unwrap()
+            .args(["history", query])
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{query}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let text = String::from_utf8(out.stdout).unwrap();
+        assert!(text.starts_with(code), "{query}: {text}");
+    }
+}

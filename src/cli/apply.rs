@@ -434,7 +434,7 @@ impl Config {
             value_columns,
             missing,
         };
-        data::check_columns(&data)?;
+        let data = data::resolve_columns(&data)?;
         let output = Target::parse(&args.output);
         output.check_writable()?;
         let format = OutputFormat::from_target(&output)?;
@@ -864,6 +864,8 @@ pub struct Report {
     pub output: Written,
     /// The sidecar written, if any.
     pub sidecar: Option<PathBuf>,
+    /// Things the user should know about the input (a Latin-1 fallback).
+    pub warnings: Vec<String>,
 }
 
 fn finding(
@@ -1460,6 +1462,7 @@ pub fn execute(config: &Config) -> Result<Report> {
         crosswalk_label,
         output: written,
         sidecar: None,
+        warnings: table.warnings.clone(),
     };
     if let Target::File(path) = &config.output {
         let sidecar = sidecar_path(path);
@@ -1570,6 +1573,9 @@ pub fn summary_lines(config: &Config, s: &Report) -> Vec<String> {
 }
 
 fn print_summary(global: Global, config: &Config, s: &Report) {
+    for w in &s.warnings {
+        warn(w);
+    }
     for b in &s.balances {
         if b.discrepancy().abs() > 1e-9 * b.input.abs().max(1.0) {
             warn(format!(

@@ -517,6 +517,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
             ),
             output: arg(&map),
             states_in_data_only: true,
+            ..Default::default()
         },
         global,
     )?;

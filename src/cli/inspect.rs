@@ -25,20 +25,54 @@ pub struct Args {
     pub top: usize,
 }
 
-/// Runs the command: the summary goes to standard output, problems to
-/// standard error.
-pub fn run(args: Args, _global: Global) -> Result<()> {
-    if !(args.tolerance >= 0.0 && args.tolerance < 1.0) {
-        return Err(Error::Usage(format!(
-            "--tolerance {} is out of range; give a small non-negative number such as 1e-6",
-            args.tolerance
-        )));
+/// Everything checked before the work.
+#[derive(Debug, Clone)]
+pub struct Config {
+    /// The crosswalk file.
+    pub file: PathBuf,
+    /// How far a source's weights may be from summing to 1.
+    pub tolerance: f64,
+    /// How many of the largest changes to list.
+    pub top: usize,
+}
+
+impl Config {
+    /// Checks the arguments.
+    pub fn from_args(args: &Args) -> Result<Config> {
+        if !(args.tolerance >= 0.0 && args.tolerance < 1.0) {
+            return Err(Error::Usage(format!(
+                "--tolerance {} is out of range; give a small non-negative number such as 1e-6",
+                args.tolerance
+            )));
+        }
+        Ok(Config {
+            file: args.file.clone(),
+            tolerance: args.tolerance,
+            top: args.top,
+        })
     }
-    let file = read_file(&args.file)?;
+}
+
+/// What the inspection found.
+#[derive(Debug, Clone)]
+pub struct Report {
+    /// The shape of the crosswalk.
+    pub summary: crate::core::crosswalk::Summary,
+    /// The summary as printed.
+    pub text: String,
+    /// Problems, each as "FILE: line N: message" (or "FILE: source CODE:
+    /// message"), by line; codes that lost their leading zero among them.
+    pub problems: Vec<String>,
+}
+
+/// Reads and checks the crosswalk.
+pub fn execute(config: &Config) -> Result<Report> {
+    let file = read_file(&config.file)?;
     let cw = &file.crosswalk;
-    let s = cw.summary(args.top);
+    let s = cw.summary(config.top);
+
     let mut out = String::new();
-    out.push_str(&format!("{}\n", args.file.display()));
+    out.push_str(&format!("{}\n", config.file.display()));
     out.push_str(&format!("  rows            {}\n", s.rows));
     out.push_str(&format!("  sources         {}\n", s.sources));
     out.push_str(&format!("  targets         {}\n", s.targets));
@@ -61,9 +95,6 @@ pub fn run(args: Args, _global: Global) -> Result<()> {
             out.push_str(&format!("    {:.4}  {text}\n", moved));
         }
     }
-    crate::io::output::write_to(&crate::io::output::Target::Stdout, |w| {
-        w.write_all(out.as_bytes())
-    })?;
     let mut lines: Vec<(Option<usize>, String, String)> = file
         .repairs
         .iter()
@@ -79,30 +110,51 @@ pub fn run(args: Args, _global: Global) -> Result<()> {
         })
         .collect();
     lines.extend(
-        cw.validate(args.tolerance)
+        cw.validate(config.tolerance)
             .into_iter()
             .map(|p| (p.row, p.from_code, p.message)),
     );
     lines.sort_by_key(|(row, _, _)| row.map_or(usize::MAX, |r| r));
-    let problems = lines;
-    if problems.is_empty() {
+    let problems = lines
+        .into_iter()
+        .map(|(row, code, message)| match row {
+            Some(r) => format!(
+                "{}: line {}: {message}",
+                config.file.display(),
+                file.lines[r]
+            ),
+            None => format!("{}: source {code}: {message}", config.file.display()),
+        })
+        .collect();
+    Ok(Report {
+        summary: s,
+        text: out,
+        problems,
+    })
+}
+
+/// Runs the command: the summary goes to standard output, problems to
+/// standard error.
+pub fn run(args: Args, _global: Global) -> Result<()> {
+    let config = Config::from_args(&args)?;
+    let report = execute(&config)?;
+    crate::io::output::write_to(&crate::io::output::Target::Stdout, |w| {
+        w.write_all(report.text.as_bytes())
+    })?;
+    if report.problems.is_empty() {
         return Ok(());
     }
-    for (row, code, message) in problems.iter().take(50) {
-        let at = match row {
-            Some(r) => format!("{}: line {}", args.file.display(), file.lines[*r]),
-            None => format!("{}: source {code}", args.file.display()),
-        };
-        eprintln!("{at}: {message}");
+    for p in report.problems.iter().take(50) {
+        eprintln!("{p}");
     }
-    if problems.len() > 50 {
-        eprintln!("... and {} more", problems.len() - 50);
+    if report.problems.len() > 50 {
+        eprintln!("... and {} more", report.problems.len() - 50);
     }
     Err(Error::input(
-        Location::file(&args.file),
+        Location::file(&config.file),
         format!(
             "{} problems found; the crosswalk is not valid",
-            problems.len()
+            report.problems.len()
         ),
     ))
 }

@@ -180,7 +180,11 @@ mod tests {
         let mut checked = 0;
         for line in table.lines().skip(1) {
             let f: Vec<&str> = line.split(',').collect();
-            let data = if f[0] == "unemployment" { &rates } else { &squares };
+            let data = if f[0] == "unemployment" {
+                &rates
+            } else {
+                &squares
+            };
             let k: usize = f[2].parse().unwrap();
             let how = match f[1] {
                 "quantiles" => Classing::Quantiles(k),
@@ -191,7 +195,10 @@ mod tests {
             let counts: Vec<usize> = f[4].split(';').map(|b| b.parse().unwrap()).collect();
             assert_eq!(c.breaks.len(), want.len(), "{line}");
             for (got, want) in c.breaks.iter().zip(&want) {
-                assert!((got - want).abs() <= 1e-12 * want.abs().max(1.0), "{line}: {got}");
+                assert!(
+                    (got - want).abs() <= 1e-12 * want.abs().max(1.0),
+                    "{line}: {got}"
+                );
             }
             assert_eq!(c.counts, counts, "{line}");
             checked += 1;

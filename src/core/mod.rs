@@ -4,6 +4,7 @@
 pub mod allocate;
 pub mod audit;
 pub mod chain;
+pub mod classify;
 pub mod composite;
 pub mod crosswalk;
 pub mod decisions;

@@ -3,9 +3,11 @@
 //! text, values as numbers), folding its rows onto the sources of a
 //! [`Plan`], and writing the results, the report and the sidecar metadata.
 //!
-//! Line numbers in messages are the record number plus one (the header is
-//! line 1); they match the file's lines unless a quoted field holds a line
-//! break.
+//! The text is read as [`crate::io::table`] reads every table (UTF-8 with or
+//! without a byte-order mark, else Windows-1252; NUL bytes and control
+//! characters refused; a column found by the same name rule; blank lines
+//! skipped), then handed to polars; line numbers in messages are the
+//! file's physical lines, after quoted line breaks and CRLF endings too.
 
 use std::collections::HashMap;
 use std::hash::{BuildHasherDefault, Hasher};
@@ -20,7 +22,10 @@ use crate::core::allocate::{Allocation, Plan, SourceValues};
 use crate::error::{Error, Location, Result};
 pub use crate::io::output::{csv_field, sha256_file};
 use crate::io::output::{fixed, NumberFormat};
-use crate::io::table::{detect_delimiter, is_parquet};
+use crate::io::table::{
+    check_text, decode_owned, detect_delimiter, find_column, is_parquet, read_table_bytes,
+    record_lines, ReadOptions,
+};
 use std::ops::Range;
 
 /// Which columns to read and how.
@@ -97,25 +102,26 @@ fn split_header(line: &str, sep: u8) -> Vec<String> {
 
 /// Checks that every column `spec` names is present, before reading rows.
 pub fn check_columns(spec: &DataSpec) -> Result<()> {
+    resolve_columns(spec).map(|_| ())
+}
+
+/// `spec` with each column named as the file names it, found by the one
+/// column rule of [`find_column`] (exact, then ignoring case and
+/// surrounding spaces), so `--period-column year` reads "Year" and the
+/// output keeps the file's "Year". A missing column is an error listing
+/// the columns present.
+pub fn resolve_columns(spec: &DataSpec) -> Result<DataSpec> {
     let names = column_names(spec)?;
-    let wanted = [
-        Some(&spec.code_column),
-        spec.state_column.as_ref(),
-        spec.period_column.as_ref(),
-    ]
-    .into_iter()
-    .flatten()
-    .chain(&spec.value_columns);
-    for w in wanted {
-        if !names.iter().any(|n| n == w) {
-            return Err(Error::MissingColumn {
-                path: spec.path.clone(),
-                column: w.clone(),
-                available: names.join(", "),
-            });
-        }
-    }
-    Ok(())
+    let find = |name: &String| -> Result<String> {
+        find_column(&spec.path, &names, name).map(|i| names[i].clone())
+    };
+    Ok(DataSpec {
+        code_column: find(&spec.code_column)?,
+        state_column: spec.state_column.as_ref().map(find).transpose()?,
+        period_column: spec.period_column.as_ref().map(find).transpose()?,
+        value_columns: spec.value_columns.iter().map(find).collect::<Result<_>>()?,
+        ..spec.clone()
+    })
 }
 
 /// A data table held as columns.
@@ -130,6 +136,25 @@ pub struct DataTable {
     values: Vec<Float64Chunked>,
     /// The value columns, in the order of [`DataSpec::value_columns`].
     pub value_columns: Vec<String>,
+    /// The physical line of each row, when it is not the row number plus
+    /// two (quoted line breaks, blank lines).
+    lines: Option<Arc<[u64]>>,
+    /// Things the user should know (a Latin-1 fallback).
+    pub warnings: Vec<String>,
+}
+
+impl DataTable {
+    /// The physical line of row `row` (0-based; the header is line 1).
+    pub fn line(&self, row: usize) -> u64 {
+        line_of(&self.lines, row)
+    }
+}
+
+fn line_of(lines: &Option<Arc<[u64]>>, row: usize) -> u64 {
+    match lines {
+        Some(l) => l.get(row).copied().unwrap_or(row as u64 + 2),
+        None => row as u64 + 2,
+    }
 }
 
 fn polars_error(path: &Path, e: PolarsError) -> Error {
@@ -152,6 +177,8 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     .into_iter()
     .flatten()
     .collect();
+    let mut lines: Option<Arc<[u64]>> = None;
+    let mut warnings = Vec::new();
     let df = if is_parquet(path, &head[..n]) {
         let all: Vec<String> = text_columns
             .iter()
@@ -172,20 +199,48 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         }
         for name in &spec.value_columns {
             let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(to_numbers(path, name, c)?);
+            columns.push(to_numbers(path, name, c, &|i| i as u64 + 2)?);
         }
         DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
     } else {
-        let sep = spec
-            .separator
-            .unwrap_or_else(|| detect_delimiter(&first_line(path).unwrap_or_default()));
-        match read_csv(spec, sep, &DataType::Float64) {
+        // One decoding for every table: the bytes checked, then UTF-8 or
+        // Windows-1252, as io::table reads them.
+        let bytes = std::fs::read(path).map_err(|e| Error::io(path, "cannot open input", e))?;
+        check_text(path, &bytes, spec.separator)?;
+        let (text, _, warning) = decode_owned(path, bytes)?;
+        warnings.extend(warning);
+        let header = text.lines().next().unwrap_or("");
+        let sep = spec.separator.unwrap_or_else(|| detect_delimiter(header));
+        // Rows are lines 2, 3, ... unless a quoted field holds a line break
+        // or a line is blank: then the lines are counted once.
+        let blank = text.contains("\n\n") || text.contains("\n\r\n");
+        if text.contains('"') || blank {
+            let fields = split_header(header, sep).len();
+            lines = Some(record_lines(&text, sep, fields).into());
+        }
+        // Blank lines are not rows (as for every table regionkey reads).
+        let text = if blank { drop_blank_lines(&text) } else { text };
+        let line = |i: usize| line_of(&lines, i);
+        match read_csv(spec, sep, &DataType::Float64, text.as_bytes()) {
             Ok(df) => df,
             // A value polars cannot read as a number: read the values as
             // text to find where, and say so.
-            Err(fast) => {
-                let df =
-                    read_csv(spec, sep, &DataType::String).map_err(|e| polars_error(path, e))?;
+            Err(_) => {
+                let df = match read_csv(spec, sep, &DataType::String, text.as_bytes()) {
+                    Ok(df) => df,
+                    // Not readable at all: say where, in the table reader's
+                    // words (ragged row, bad quoting), with the line.
+                    Err(e) => {
+                        read_table_bytes(
+                            path,
+                            text.as_bytes(),
+                            ReadOptions {
+                                delimiter: Some(sep),
+                            },
+                        )?;
+                        return Err(polars_error(path, e));
+                    }
+                };
                 let mut columns: Vec<Column> = text_columns
                     .iter()
                     .map(|n| df.column(n).cloned())
@@ -193,9 +248,8 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
                     .map_err(|e| polars_error(path, e))?;
                 for name in &spec.value_columns {
                     let c = df.column(name).map_err(|e| polars_error(path, e))?;
-                    columns.push(to_numbers(path, name, c)?);
+                    columns.push(to_numbers(path, name, c, &line)?);
                 }
-                let _ = fast;
                 DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
             }
         }
@@ -213,7 +267,9 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         // Infinite or NaN values (written "inf", "NaN") are not data.
         if let Some(i) = ca.iter().position(|v| v.is_some_and(|x| !x.is_finite())) {
             return Err(Error::input(
-                Location::file(path).at_line(i as u64 + 2).in_column(name),
+                Location::file(path)
+                    .at_line(line_of(&lines, i))
+                    .in_column(name),
                 "the value is not a finite number; leave the field empty if it is missing",
             ));
         }
@@ -227,10 +283,53 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         periods: spec.period_column.as_ref().map(text).transpose()?,
         values,
         value_columns: spec.value_columns.clone(),
+        lines,
+        warnings,
     })
 }
 
-fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<DataFrame> {
+/// `text` without its blank lines (line breaks inside quoted fields kept).
+fn drop_blank_lines(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    let mut quoted = false;
+    let mut line_empty = true;
+    let mut pending_cr = false;
+    for c in text.chars() {
+        match c {
+            '"' => {
+                quoted = !quoted;
+                line_empty = false;
+            }
+            '\r' if !quoted => {
+                pending_cr = true;
+                continue;
+            }
+            '\n' if !quoted => {
+                pending_cr = false;
+                if line_empty {
+                    continue;
+                }
+                out.push('\n');
+                line_empty = true;
+                continue;
+            }
+            _ => line_empty = false,
+        }
+        if pending_cr {
+            out.push('\r');
+            pending_cr = false;
+        }
+        out.push(c);
+    }
+    out
+}
+
+fn read_csv(
+    spec: &DataSpec,
+    sep: u8,
+    value_type: &DataType,
+    text: &[u8],
+) -> PolarsResult<DataFrame> {
     let mut fields: Vec<Field> = Vec::new();
     let mut names: Vec<PlSmallStr> = Vec::new();
     for name in [
@@ -259,13 +358,18 @@ fn read_csv(spec: &DataSpec, sep: u8, value_type: &DataType) -> PolarsResult<Dat
         .with_schema_overwrite(Some(Arc::new(Schema::from_iter(fields))))
         .with_parse_options(parse)
         .with_rechunk(false)
-        .try_into_reader_with_file_path(Some(spec.path.clone()))?
+        .into_reader_with_file_handle(std::io::Cursor::new(text))
         .finish()
 }
 
 /// Casts a column to numbers; the first text that is not a number is an
 /// error naming its line and column. Surrounding spaces are allowed.
-fn to_numbers(path: &Path, name: &str, column: &Column) -> Result<Column> {
+fn to_numbers(
+    path: &Path,
+    name: &str,
+    column: &Column,
+    line: &dyn Fn(usize) -> u64,
+) -> Result<Column> {
     if column.dtype().is_primitive_numeric() {
         return column
             .cast(&DataType::Float64)
@@ -284,7 +388,7 @@ fn to_numbers(path: &Path, name: &str, column: &Column) -> Result<Column> {
                 Ok(x) => out.push(Some(x)),
                 Err(_) => {
                     return Err(Error::input(
-                        Location::file(path).at_line(i as u64 + 2).in_column(name),
+                        Location::file(path).at_line(line(i)).in_column(name),
                         format!("{t:?} is not a number; leave the field empty if the value is missing, or name the marker with --missing"),
                     ))
                 }
@@ -381,7 +485,7 @@ impl DataTable {
             None => Box::new(std::iter::repeat_n(Some(""), n)),
         };
         for (i, (code, state)) in self.codes.iter().zip(states).enumerate() {
-            let line = i as u64 + 2;
+            let line = self.line(i);
             let (Some(code), Some(state)) = (code, state) else {
                 missing_code.0 += 1;
                 if missing_code.1 == 0 {
@@ -428,7 +532,7 @@ impl DataTable {
                     let Some(p) = p.map(str::trim).filter(|p| !p.is_empty()) else {
                         missing_period.0 += 1;
                         if missing_period.1 == 0 {
-                            missing_period.1 = i as u64 + 2;
+                            missing_period.1 = self.line(i);
                         }
                         row_period.push(NONE);
                         continue;
@@ -533,6 +637,7 @@ impl DataTable {
             sources,
             totals,
             left_out,
+            lines: self.lines.clone(),
         }
     }
 }
@@ -548,6 +653,7 @@ pub struct Folded {
     sources: usize,
     /// Per value column: the sum of every known value of the table.
     pub totals: Vec<f64>,
+    lines: Option<Arc<[u64]>>,
     /// Per value column: the sum of the known values of rows that reach no
     /// source (no code, no period, or a code the plan does not know).
     pub left_out: Vec<f64>,
@@ -557,7 +663,10 @@ impl Folded {
     /// Rows of a (period, source) cell, and the first row's line.
     pub fn cell(&self, period: usize, source: usize) -> (u32, u64) {
         let i = period * self.sources + source;
-        (self.rows[i], self.first_row[i] as u64 + 2)
+        (
+            self.rows[i],
+            line_of(&self.lines, self.first_row[i] as usize),
+        )
     }
 }
 

@@ -9,6 +9,7 @@ pub mod geo;
 pub mod guard;
 pub mod html;
 pub mod output;
+pub mod png;
 pub mod progress;
 pub mod review;
 pub mod svg;

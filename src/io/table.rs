@@ -44,21 +44,7 @@ impl Table {
     /// Index of the column named `name` (exact match first, then ignoring
     /// case and surrounding spaces), or an error listing the columns.
     pub fn column(&self, name: &str) -> Result<usize> {
-        if let Some(i) = self.headers.iter().position(|h| h == name) {
-            return Ok(i);
-        }
-        let want = name.trim().to_lowercase();
-        let hits: Vec<usize> = (0..self.headers.len())
-            .filter(|&i| self.headers[i].trim().to_lowercase() == want)
-            .collect();
-        match hits.as_slice() {
-            [i] => Ok(*i),
-            _ => Err(Error::MissingColumn {
-                path: self.path.clone(),
-                column: name.to_string(),
-                available: self.headers.join(", "),
-            }),
-        }
+        find_column(&self.path, &self.headers, name)
     }
 
     /// Location of record `row` (0-based) in column `column` (an index).
@@ -76,6 +62,147 @@ impl Table {
     /// True when the table has no records.
     pub fn is_empty(&self) -> bool {
         self.records.is_empty()
+    }
+}
+
+/// The column of `headers` named `name`: an exact match first, then one
+/// ignoring case and surrounding spaces; otherwise an error listing the
+/// columns. The one rule for every table regionkey reads.
+pub fn find_column(path: &Path, headers: &[String], name: &str) -> Result<usize> {
+    if let Some(i) = headers.iter().position(|h| h == name) {
+        return Ok(i);
+    }
+    let want = name.trim().to_lowercase();
+    let hits: Vec<usize> = (0..headers.len())
+        .filter(|&i| headers[i].trim().to_lowercase() == want)
+        .collect();
+    match hits.as_slice() {
+        [i] => Ok(*i),
+        _ => Err(Error::MissingColumn {
+            path: path.to_path_buf(),
+            column: name.to_string(),
+            available: headers.join(", "),
+        }),
+    }
+}
+
+/// Refuses text that holds NUL bytes or other control characters (besides
+/// tab, line feed and carriage return): the mark of a spreadsheet, a
+/// compressed file or a broken export read as text. The error names the
+/// line and, when the header can be read, the column.
+pub fn check_text(path: &Path, bytes: &[u8], delimiter: Option<u8>) -> Result<()> {
+    // UTF-16 text is full of NUL bytes; decoding refuses it by name.
+    if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
+        return Ok(());
+    }
+    let bad = |b: u8| (b < 0x20 && !matches!(b, b'\t' | b'\n' | b'\r')) || b == 0x7F;
+    // A branch-free pass first (most files are clean), then the position.
+    let any = bytes
+        .chunks(1 << 16)
+        .any(|c| c.iter().fold(false, |acc, &b| acc | bad(b)));
+    if !any {
+        return Ok(());
+    }
+    let at = bytes.iter().position(|&b| bad(b)).unwrap_or(0);
+    let line_start = bytes[..at]
+        .iter()
+        .rposition(|&b| b == b'\n')
+        .map_or(0, |i| i + 1);
+    let line = 1 + bytes[..at].iter().filter(|&&b| b == b'\n').count() as u64;
+    let mut location = Location::file(path).at_line(line);
+    // The column: delimiters outside quotes before the byte on its line.
+    let header_end = bytes
+        .iter()
+        .position(|&b| b == b'\n')
+        .unwrap_or(bytes.len());
+    let header = String::from_utf8_lossy(&bytes[..header_end]);
+    let header = header.trim_start_matches('\u{feff}');
+    let delimiter = delimiter.unwrap_or_else(|| detect_delimiter(header));
+    let mut field = 0usize;
+    let mut quoted = false;
+    for &b in &bytes[line_start..at] {
+        if b == b'"' {
+            quoted = !quoted;
+        } else if b == delimiter && !quoted {
+            field += 1;
+        }
+    }
+    let names: Vec<&str> = header.split(delimiter as char).collect();
+    if line > 1 {
+        if let Some(name) = names.get(field) {
+            location = location.in_column(name.trim().trim_matches('"'));
+        }
+    }
+    let what = if bytes[at] == 0 {
+        "a NUL byte".to_string()
+    } else {
+        format!("the control character 0x{:02X}", bytes[at])
+    };
+    Err(Error::input(
+        location,
+        format!("{what}: the file is not a text table (a spreadsheet, a compressed file, or a damaged export?); save it as CSV text and try again"),
+    ))
+}
+
+/// The physical line (1-based; the header is line 1) of each record of a
+/// delimited text, as [`read_table`] numbers them: after quoted line breaks
+/// and CRLF endings, lines with nothing on them skipped.
+pub fn record_lines(text: &str, delimiter: u8, fields: usize) -> Vec<u64> {
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let mut lines = Vec::new();
+    let _ = reader.headers();
+    let mut record = csv::StringRecord::new();
+    let mut counter = LineCounter::new(text.as_bytes());
+    while let Ok(true) = reader.read_record(&mut record) {
+        if record.len() == 1 && record[0].is_empty() && fields > 1 {
+            continue;
+        }
+        lines.push(counter.line_at(record.position().map_or(0, |p| p.byte())));
+    }
+    lines
+}
+
+/// Physical line numbers from byte offsets, counting line feeds (so CRLF
+/// and quoted line breaks count as the file shows them). Offsets asked for
+/// in increasing order cost one pass over the text in all.
+pub struct LineCounter<'a> {
+    text: &'a [u8],
+    byte: usize,
+    line: u64,
+}
+
+impl<'a> LineCounter<'a> {
+    /// A counter at the start of `text` (line 1).
+    pub fn new(text: &'a [u8]) -> Self {
+        LineCounter {
+            text,
+            byte: 0,
+            line: 1,
+        }
+    }
+
+    /// The line holding byte `offset`; blank lines before a record are
+    /// skipped to the record's first character.
+    pub fn line_at(&mut self, offset: u64) -> u64 {
+        let mut offset = (offset as usize).min(self.text.len());
+        if offset < self.byte {
+            self.byte = 0;
+            self.line = 1;
+        }
+        // A record's position may point at the line breaks before it.
+        while offset < self.text.len() && matches!(self.text[offset], b'\r' | b'\n') {
+            offset += 1;
+        }
+        self.line += self.text[self.byte..offset]
+            .iter()
+            .filter(|&&b| b == b'\n')
+            .count() as u64;
+        self.byte = offset;
+        self.line
     }
 }
 
@@ -152,6 +279,18 @@ pub fn decode(path: &Path, bytes: &[u8]) -> Result<(String, Encoding, Option<Str
     }
 }
 
+/// [`decode`] taking the bytes: valid UTF-8 is kept without a copy (a
+/// byte-order mark removed), anything else decoded as Windows-1252.
+pub fn decode_owned(path: &Path, mut bytes: Vec<u8>) -> Result<(String, Encoding, Option<String>)> {
+    if bytes.starts_with(&[0xEF, 0xBB, 0xBF]) {
+        bytes.drain(..3);
+    }
+    match String::from_utf8(bytes) {
+        Ok(s) => Ok((s, Encoding::Utf8, None)),
+        Err(e) => decode(path, e.as_bytes()),
+    }
+}
+
 /// Windows-1252 byte to char (Latin-1 with the 0x80..0x9F printable forms).
 fn cp1252(b: u8) -> char {
     const HIGH: [char; 32] = [
@@ -192,6 +331,7 @@ pub fn detect_delimiter(text: &str) -> u8 {
 }
 
 fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Table> {
+    check_text(path, bytes, options.delimiter)?;
     let (text, encoding, warning) = decode(path, bytes)?;
     if text.trim().is_empty() {
         return Err(Error::input(
@@ -207,7 +347,7 @@ fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Tab
         .from_reader(text.as_bytes());
     let headers: Vec<String> = reader
         .headers()
-        .map_err(|e| csv_error(path, e, &[]))?
+        .map_err(|e| csv_error(path, e, &[], text.as_bytes()))?
         .iter()
         .map(|h| h.trim().to_string())
         .collect();
@@ -215,10 +355,11 @@ fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Tab
     let mut records = Vec::new();
     let mut lines = Vec::new();
     let mut record = csv::StringRecord::new();
+    let mut counter = LineCounter::new(text.as_bytes());
     loop {
         match reader.read_record(&mut record) {
             Ok(true) => {
-                let line = record.position().map_or(0, |p| p.line());
+                let line = counter.line_at(record.position().map_or(0, |p| p.byte()));
                 // A line with nothing on it (e.g. a trailing blank line in a
                 // one-column file) is not a row.
                 if record.len() == 1 && record[0].is_empty() && headers.len() > 1 {
@@ -228,7 +369,7 @@ fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Tab
                 lines.push(line);
             }
             Ok(false) => break,
-            Err(e) => return Err(csv_error(path, e, &headers)),
+            Err(e) => return Err(csv_error(path, e, &headers, text.as_bytes())),
         }
     }
     Ok(Table {
@@ -259,8 +400,10 @@ fn check_headers(path: &Path, headers: &[String]) -> Result<()> {
     Ok(())
 }
 
-fn csv_error(path: &Path, e: csv::Error, headers: &[String]) -> Error {
-    let line = e.position().map(|p| p.line());
+fn csv_error(path: &Path, e: csv::Error, headers: &[String], text: &[u8]) -> Error {
+    let line = e
+        .position()
+        .map(|p| LineCounter::new(text).line_at(p.byte()));
     let mut location = Location::file(path);
     if let Some(l) = line {
         location = location.at_line(l);
@@ -405,6 +548,29 @@ mod tests {
             .unwrap_err()
             .to_string()
             .contains("empty"));
+    }
+
+    #[test]
+    fn nul_bytes_and_control_characters_are_refused_naming_line_and_column() {
+        let e = read_bytes(b"code,n\nA,1\nB,2\x003\n")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("line 3"), "{e}");
+        assert!(e.contains("column \"n\""), "{e}");
+        assert!(e.contains("NUL"), "{e}");
+        let e = read_bytes(b"code,n\nA\x1b,1\n").unwrap_err().to_string();
+        assert!(e.contains("line 2") && e.contains("column \"code\""), "{e}");
+        assert!(e.contains("0x1B"), "{e}");
+        // Tabs, CR and LF are text.
+        assert!(read_bytes(b"code\tn\r\nA\t1\r\n").is_ok());
+    }
+
+    #[test]
+    fn record_lines_follow_quoted_newlines_crlf_and_blank_lines() {
+        let text = "a,b\r\n\"x\r\ny\",1\r\n\r\nz,2\r\n";
+        assert_eq!(record_lines(text, b',', 2), [2, 5]);
+        let t = read_bytes(text.as_bytes()).unwrap();
+        assert_eq!(t.lines, [2, 5]);
     }
 
     #[test]
