@@ -893,10 +893,6 @@ fn evaluation_hand_typed_us_county_names() {
 #[test]
 fn evaluation_user_list_italian_provinces() {
     let reference = fixture("eval/it-provinces-reference.csv");
-    let f = evaluate(
-        "it-provinces",
-        &["--reference", reference.to_str().unwrap()],
-    );
     let floor = Floor {
         recall: 0.35,
         top3: GOAL_REVIEW_TOP3,
@@ -915,10 +911,6 @@ fn evaluation_user_list_italian_provinces() {
 #[test]
 fn evaluation_user_list_french_departements() {
     let reference = fixture("eval/fr-departements-reference.csv");
-    let f = evaluate(
-        "fr-departements",
-        &["--reference", reference.to_str().unwrap()],
-    );
     let floor = Floor {
         recall: 0.57,
         top3: GOAL_REVIEW_TOP3,
@@ -937,10 +929,6 @@ fn evaluation_user_list_french_departements() {
 #[test]
 fn evaluation_user_list_czech_districts() {
     let reference = fixture("eval/cz-districts-reference.csv");
-    let f = evaluate(
-        "cz-districts",
-        &["--reference", reference.to_str().unwrap()],
-    );
     let floor = Floor {
         recall: 0.98,
         top3: GOAL_REVIEW_TOP3,
