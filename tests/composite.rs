@@ -272,3 +272,231 @@ mod command {
             .stderr(predicate::str::contains("99999"));
     }
 }
+
+mod applying {
+    //! `regionkey apply` on pooled reports: a code cell of several codes
+    //! joined by `+` is split among its members. Populations are 2020
+    //! census counts as recalled (from memory; the checks are on the
+    //! arithmetic, written beside each); case figures are made up.
+
+    use std::collections::BTreeMap;
+    use std::path::{Path, PathBuf};
+
+    use assert_cmd::Command;
+
+    fn regionkey() -> Command {
+        Command::cargo_bin("regionkey").unwrap()
+    }
+
+    fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
+        let p = dir.join(name);
+        std::fs::write(&p, text).unwrap();
+        p
+    }
+
+    type Row = BTreeMap<String, String>;
+
+    fn read_rows(path: &Path) -> Vec<Row> {
+        let mut r = csv::Reader::from_path(path).unwrap();
+        let headers = r.headers().unwrap().clone();
+        r.records()
+            .map(|rec| {
+                headers
+                    .iter()
+                    .zip(rec.unwrap().iter())
+                    .map(|(h, v)| (h.to_string(), v.to_string()))
+                    .collect()
+            })
+            .collect()
+    }
+
+    fn find<'a>(rows: &'a [Row], code: &str, year: &str) -> &'a Row {
+        rows.iter()
+            .find(|r| r["code"] == code && r["year"] == year)
+            .unwrap_or_else(|| panic!("no row {code} {year} in {rows:?}"))
+    }
+
+    fn num(row: &Row, col: &str) -> f64 {
+        row[col]
+            .parse()
+            .unwrap_or_else(|_| panic!("{col} = {:?} in {row:?}", row[col]))
+    }
+
+    fn apply(dir: &Path, data: &Path, extra: &[&str]) -> (Vec<Row>, Vec<Row>) {
+        let out = dir.join("out.csv");
+        let report = dir.join("report.csv");
+        regionkey()
+            .arg("apply")
+            .arg(data)
+            .args(["--to-vintage", "2023", "--code-column", "code"])
+            .args(["--period-column", "year"])
+            .args(extra)
+            .arg("--output")
+            .arg(&out)
+            .arg("--report")
+            .arg(&report)
+            .assert()
+            .success();
+        (read_rows(&out), read_rows(&report))
+    }
+
+    #[test]
+    fn new_york_citys_pooled_figure_is_split_over_its_five_counties_by_area() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = write(
+            dir.path(),
+            "nyc.csv",
+            "code,year,cases,pop\n36005+36047+36061+36081+36085,2020,1000,8000000\n",
+        );
+        let (rows, report) = apply(
+            dir.path(),
+            &data,
+            &["--sum", "cases", "--ratio", "rate=cases/pop"],
+        );
+        let members = ["36005", "36047", "36061", "36081", "36085"];
+        // Land areas in the Census Bureau's 2020 gazetteer, as recalled (from
+        // memory, square miles): 42.1, 69.4, 22.7, 108.5, 57.5 of 300.2; the
+        // 1:10m geometry's shares lie within 0.05 of them.
+        let land = [42.1, 69.4, 22.7, 108.5, 57.5];
+        let mut total = 0.0;
+        for (code, land) in members.iter().zip(land) {
+            let r = find(&rows, code, "2020");
+            let share = num(r, "cases") / 1000.0;
+            assert!((share - land / 300.2).abs() < 0.05, "{code}: {share}");
+            total += num(r, "cases");
+            // Every member is wholly covered, by the pooled report.
+            assert_eq!(num(r, "cases_coverage"), 1.0);
+            assert_eq!(r["pooled_from"], "36005+36047+36061+36081+36085 by area");
+            // The rate is the pooled rate: 1000 / 8,000,000 = 0.000125.
+            assert!((num(r, "rate") - 0.000125).abs() < 1e-15, "{r:?}");
+        }
+        // The members' figures add up to the pooled figure.
+        assert!((total - 1000.0).abs() < 1e-9, "{total}");
+        let pooled = report.iter().find(|r| r["kind"] == "pooled").unwrap();
+        assert_eq!(pooled["code"], "36005+36047+36061+36081+36085");
+        assert!(
+            pooled["detail"].contains("by area (estimates)"),
+            "{pooled:?}"
+        );
+    }
+
+    #[test]
+    fn a_pooled_alaska_pair_is_split_by_population() {
+        let dir = tempfile::tempdir().unwrap();
+        // 2020 census (from memory): Bristol Bay Borough 844, Lake and
+        // Peninsula Borough 1,476; together 2,320.
+        let pop = write(
+            dir.path(),
+            "pop.csv",
+            "code,population\n02060,844\n02164,1476\n",
+        );
+        let data = write(dir.path(), "ak.csv", "code,year,cases\n2164+2060,2021,46\n");
+        let (rows, _) = apply(
+            dir.path(),
+            &data,
+            &[
+                "--sum",
+                "cases",
+                "--split-by",
+                "population",
+                "--population",
+                pop.to_str().unwrap(),
+            ],
+        );
+        // Bristol Bay: 46 · 844 / 2320 = 16.7327586...; Lake and Peninsula:
+        // 46 · 1476 / 2320 = 29.2672413...
+        let bb = find(&rows, "02060", "2021");
+        let lp = find(&rows, "02164", "2021");
+        assert!((num(bb, "cases") - 46.0 * 844.0 / 2320.0).abs() < 1e-9);
+        assert!((num(lp, "cases") - 46.0 * 1476.0 / 2320.0).abs() < 1e-9);
+        assert_eq!(bb["pooled_from"], "02060+02164 by population");
+    }
+
+    #[test]
+    fn a_district_reported_pooled_one_year_and_by_member_the_next_with_one_missing() {
+        let dir = tempfile::tempdir().unwrap();
+        // Brown (20013) 9,508 and Nemaha (20131) 10,273 people (2020 census,
+        // from memory); together 19,781.
+        let pop = write(
+            dir.path(),
+            "pop.csv",
+            "code,population\n20013,9508\n20131,10273\n",
+        );
+        let data = write(
+            dir.path(),
+            "ks.csv",
+            "code,year,cases\n20013+20131,2021,40\n20013,2022,12\n",
+        );
+        let (rows, report) = apply(
+            dir.path(),
+            &data,
+            &[
+                "--sum",
+                "cases",
+                "--split-by",
+                "population",
+                "--population",
+                pop.to_str().unwrap(),
+            ],
+        );
+        // 2021, pooled: Brown 40 · 9508 / 19781 = 19.226530; Nemaha
+        // 40 · 10273 / 19781 = 20.773470; both covered, from the pooled report.
+        let brown = find(&rows, "20013", "2021");
+        let nemaha = find(&rows, "20131", "2021");
+        assert!((num(brown, "cases") - 19.226530).abs() < 1e-6);
+        assert!((num(nemaha, "cases") - 20.773470).abs() < 1e-6);
+        assert_eq!(num(nemaha, "cases_coverage"), 1.0);
+        assert_eq!(nemaha["pooled_from"], "20013+20131 by population");
+        // 2022, by member: Brown 12 (its own row, not pooled); Nemaha has
+        // no row: no figure, coverage 0 (missing is not zero).
+        let brown = find(&rows, "20013", "2022");
+        assert_eq!(num(brown, "cases"), 12.0);
+        assert_eq!(brown["pooled_from"], "");
+        let nemaha = find(&rows, "20131", "2022");
+        assert_eq!(nemaha["cases"], "");
+        assert_eq!(num(nemaha, "cases_coverage"), 0.0);
+        // Nemaha is absent in 2022 only: 2021 came from the pooled report.
+        let absent: Vec<&Row> = report
+            .iter()
+            .filter(|r| r["kind"] == "absent-source" && r["code"] == "20131")
+            .collect();
+        assert_eq!(absent.len(), 1, "{absent:?}");
+        assert_eq!(absent[0]["period"], "2022");
+    }
+
+    #[test]
+    fn a_member_reported_twice_in_a_period_and_a_member_without_size_are_reported() {
+        let dir = tempfile::tempdir().unwrap();
+        let data = write(
+            dir.path(),
+            "d.csv",
+            "code,year,cases\n25007+25019,2020,7\n25019,2020,2\n51610+51059,2020,5\n",
+        );
+        let (rows, report) = apply(dir.path(), &data, &["--sum", "cases"]);
+        let overlap = report
+            .iter()
+            .find(|r| r["kind"] == "pooled-overlap")
+            .unwrap();
+        assert_eq!(
+            (overlap["code"].as_str(), overlap["period"].as_str()),
+            ("25019", "2020")
+        );
+        // Falls Church city (51610) has no area in the 1:10m geometry: that
+        // pooled report cannot be split by area; its row is reported, not
+        // allocated.
+        let left = report
+            .iter()
+            .find(|r| r["kind"] == "pooled-left-out")
+            .unwrap();
+        assert_eq!(left["code"], "51059+51610");
+        assert_eq!(left["rows"], "1");
+        // Fairfax County is written without a figure: no data reached it.
+        let fairfax = find(&rows, "51059", "2020");
+        assert_eq!(fairfax["cases"], "");
+        assert_eq!(num(fairfax, "cases_coverage"), 0.0);
+        // Dukes and Nantucket: 7 split by area, plus Nantucket's own 2.
+        let dukes = num(find(&rows, "25007", "2020"), "cases");
+        let nantucket = num(find(&rows, "25019", "2020"), "cases");
+        assert!((dukes + nantucket - 9.0).abs() < 1e-9);
+    }
+}

@@ -198,7 +198,14 @@ fn the_readmes_examples_run_as_written_on_the_demos_outputs() {
     // every other one must succeed.
     let dir = tempfile::tempdir().unwrap();
     run_demo(&dir.path().join("demo-output"));
-    let outputs = ["--output", "-o", "--review", "--report"];
+    let outputs = [
+        "--output",
+        "-o",
+        "--review",
+        "--report",
+        "--to-groups",
+        "--to-units",
+    ];
     let (mut ran, mut skipped) = (Vec::new(), Vec::new());
     for args in readme_commands() {
         let reads_missing_file = args.iter().enumerate().skip(2).any(|(i, a)| {

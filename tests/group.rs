@@ -411,3 +411,65 @@ fn options_are_checked_before_any_work() {
         .stderr(predicate::str::contains("line 2: column \"group\""))
         .stderr(predicate::str::contains("North_District"));
 }
+
+#[test]
+fn the_demo_splits_its_pooled_report_and_gathers_it_back_into_its_service_area() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("demo");
+    regionkey()
+        .arg("demo")
+        .arg("--out")
+        .arg(&dir)
+        .assert()
+        .success();
+    let input = read_rows(&dir.join("input/food-bank-reports.csv"));
+    let reported = |year: &str| -> f64 {
+        num(
+            input
+                .iter()
+                .find(|r| r["county"] == "Bristol Bay + Lake and Peninsula" && r["year"] == year)
+                .unwrap(),
+            "households_eligible",
+        )
+    };
+    // The pooled report is split by area onto its two boroughs ...
+    let counties = read_rows(&dir.join("harmonized-2023.csv"));
+    let at = |code: &str, year: &str| {
+        counties
+            .iter()
+            .find(|r| r["code"] == code && r["year"] == year)
+            .unwrap()
+            .clone()
+    };
+    let (bb, lp) = (at("02060", "2015"), at("02164", "2015"));
+    assert_eq!(bb["pooled_from"], "02060+02164 by area");
+    let split = num(&bb, "households_eligible") + num(&lp, "households_eligible");
+    assert!(close(split, reported("2015"), 1e-6), "{split}");
+    // ... and the service area made of exactly those two boroughs gets the
+    // reported figure back, fully covered.
+    let areas = read_rows(&dir.join("service-areas.csv"));
+    let sw = areas
+        .iter()
+        .find(|r| r["code"] == "AK-SOUTHWEST" && r["year"] == "2015")
+        .unwrap();
+    assert!(close(
+        num(sw, "households_eligible"),
+        reported("2015"),
+        1e-6
+    ));
+    assert!(close(num(sw, "households_eligible_coverage"), 1.0, 1e-12));
+    // Copper River (02066) has no report in 2021: its service area is only
+    // partly covered that year, by the part of its land the others make up.
+    let sc = areas
+        .iter()
+        .find(|r| r["code"] == "AK-SOUTHCENTRAL" && r["year"] == "2021")
+        .unwrap();
+    let cov = num(sc, "households_eligible_coverage");
+    assert!(cov > 0.0 && cov < 1.0, "{cov}");
+    let summary = std::fs::read_to_string(dir.join("SUMMARY.txt")).unwrap();
+    assert!(
+        summary.contains("Pooled report 02060+02164 by area"),
+        "{summary}"
+    );
+    assert!(summary.contains("Service areas"), "{summary}");
+}

@@ -8,6 +8,7 @@
 #   RUNS    timed runs of each program per level (default 3; min and max shown)
 #   LEVELS  spacings in degrees (default "0.01 0.005 0.002")
 #   PYTHON  a Python with shapely, pyproj and numpy (default python3)
+#   REGIONKEY  a regionkey binary to time instead of building the release one
 #
 # For each level: densify.py makes both layers (every arc cut to at most the
 # spacing, a deterministic wiggle, shared edges kept shared); regionkey and
@@ -31,12 +32,15 @@ RUNS=${1:-3}
 LEVELS=${2:-"0.01 0.005 0.002"}
 PY=${PYTHON:-python3}
 HERE=scripts/bench-overlay
-cargo build --release --bin regionkey >&2
-TARGET=${CARGO_TARGET_DIR:-target}
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-# A private copy: a shared target folder may be rebuilt under us.
-cp "$TARGET/release/regionkey" "$WORK/regionkey"
+if [ -n "${REGIONKEY:-}" ]; then
+    cp "$REGIONKEY" "$WORK/regionkey"
+else
+    cargo build --release --bin regionkey >&2
+    # A private copy: a shared target folder may be rebuilt under us.
+    cp "${CARGO_TARGET_DIR:-target}/release/regionkey" "$WORK/regionkey"
+fi
 RK="$WORK/regionkey"
 
 # time_of OUT_PREFIX CMD...: runs CMD under GNU time; prints "seconds MB".
@@ -50,16 +54,19 @@ time_of() {
     wall=$(grep "Elapsed (wall clock)" "$prefix.time" | awk '{print $NF}')
     rss=$(grep "Maximum resident set size" "$prefix.time" | awk '{print $NF}')
     secs=$(echo "$wall" | awk -F: '{ if (NF == 3) print $1 * 3600 + $2 * 60 + $3; else print $1 * 60 + $2 }')
-    echo "$secs $((rss / 1024))"
+    cpu=$(awk -F: '/User time|System time/ { c += $2 } END { printf "%.2f", c }' "$prefix.time")
+    echo "$secs $((rss / 1024)) $cpu"
 }
 
-# range FILE: "min–max" of the first column, and the largest second column.
+# range FILE: "min-max" wall seconds, the largest memory and the CPU
+# seconds (user + system) of the fastest run. On a busy machine the CPU
+# time is the steadier figure.
 range() {
-    sort -n "$1" | awk 'NR == 1 { lo = $1 } { hi = $1; if ($2 > m) m = $2 } END { printf "%.2f-%.2f s %d MB", lo, hi, m }'
+    sort -n "$1" | awk 'NR == 1 { lo = $1; c = $3 } { hi = $1; if ($2 > m) m = $2 } END { printf "%.2f-%.2f s (cpu %.1f s) %d MB", lo, hi, c, m }'
 }
 
 echo "machine: $(nproc) cores; $(uname -sm); $($PY -c 'import shapely; print("shapely", shapely.__version__, "GEOS", shapely.geos_version_string)')"
-printf '%-7s %-10s %-26s %-26s %-8s %s\n' level vertices regionkey "GEOS peer" ratio checks
+printf '%-7s %-10s %-36s %-36s %-8s %s\n' level vertices regionkey "GEOS peer" ratio checks
 for level in $LEVELS; do
     from="$WORK/c2017-$level.topo.json"
     to="$WORK/c2023-$level.topo.json"
@@ -74,14 +81,14 @@ for level in $LEVELS; do
         time_of "$WORK/geos" $PY $HERE/geos_overlay.py "$from" "$to" "$WORK/geos.csv" >> "$WORK/geos.t"
         i=$((i + 1))
     done
-    ratio=$(paste "$WORK/rk.t" "$WORK/geos.t" | awk '{ r = $3 / $1; if (NR == 1 || r < lo) lo = r; if (r > hi) hi = r } END { printf "%.0f-%.0fx", lo, hi }')
+    ratio=$(paste "$WORK/rk.t" "$WORK/geos.t" | awk '{ r = $4 / $1; if (NR == 1 || r < lo) lo = r; if (r > hi) hi = r } END { printf "%.0f-%.0fx", lo, hi }')
     # Answers.
     RAYON_NUM_THREADS=1 "$RK" -q overlay "$from" "$to" --output "$WORK/rk1.csv"
     if cmp -s "$WORK/rk.csv" "$WORK/rk1.csv"; then same="1=2 threads"; else same="1!=2 THREADS DIFFER"; fi
     "$RK" -q overlay "$from" "$to" --min-share 0 --output "$WORK/rk0.csv"
     $PY $HERE/geos_overlay.py "$from" "$to" "$WORK/ref.csv" 0.001
     check=$($PY $HERE/check.py "$WORK/rk0.csv" "$WORK/ref.csv" 1e-4 1e-6 1e-9 2>/dev/null || true)
-    printf '%-7s %-10s %-26s %-26s %-8s %s; %s\n' "$level" "$verts" "$(range "$WORK/rk.t")" \
+    printf '%-7s %-10s %-36s %-36s %-8s %s; %s\n' "$level" "$verts" "$(range "$WORK/rk.t")" \
         "$(range "$WORK/geos.t")" "$ratio" "$same" "$check"
     echo "$level $verts $(sort -n "$WORK/rk.t" | head -1 | cut -d' ' -f1)" >> "$WORK/growth"
 done

@@ -26,12 +26,14 @@ use std::path::PathBuf;
 use super::{say, warn, Global};
 use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
 use crate::core::chain::{check, ChainError};
+use crate::core::composite;
 use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
 use crate::core::fips::{CodeForm, FipsError};
 use crate::core::history::{carry, Carried};
 use crate::core::reference::{ChangeKind, Reference};
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::us_counties;
+use crate::io::composites as composites_io;
 use crate::io::crosswalk_file;
 use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout};
 use crate::io::output::{
@@ -114,6 +116,14 @@ pub struct Args {
     /// Write every reported row (kind, code, period, rows, first_line, detail) here as CSV.
     #[arg(long)]
     pub report: Option<PathBuf>,
+    /// How a pooled report (a code cell of several codes joined by +, such as
+    /// 36005+36047+36061+36081+36085) is split among its members: by area
+    /// (the built-in county geometry) or by population (--population FILE).
+    #[arg(long, value_enum, default_value = "area", value_name = "BASIS")]
+    pub split_by: super::group::WeightBy,
+    /// Populations for --split-by population: a table with columns code and population.
+    #[arg(long, value_name = "FILE")]
+    pub population: Option<PathBuf>,
 }
 
 /// A problem or a fact worth a line in the report.
@@ -381,6 +391,17 @@ pub struct Config {
     pub report: Option<PathBuf>,
     /// The options as given, for the sidecar.
     pub options: serde_json::Value,
+    /// How pooled reports (codes joined by `+`) are split among their members.
+    pub split: PooledSplit,
+}
+
+/// How a pooled report is split among its members.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum PooledSplit {
+    /// By each member's area in the built-in county geometry.
+    Area,
+    /// By each member's population, from a table (columns code, population).
+    Population(PathBuf),
 }
 
 impl Config {
@@ -475,6 +496,28 @@ impl Config {
                 )));
             }
         }
+        let split =
+            match (args.split_by, &args.population) {
+                (super::group::WeightBy::Area, None) => PooledSplit::Area,
+                (super::group::WeightBy::Area, Some(_)) => return Err(Error::Usage(
+                    "--population is used with --split-by population; add it, or drop --population"
+                        .into(),
+                )),
+                (super::group::WeightBy::Population, None) => return Err(Error::Usage(
+                    "--split-by population needs --population FILE (columns code and population)"
+                        .into(),
+                )),
+                (super::group::WeightBy::Population, Some(p)) => {
+                    if !p.is_file() {
+                        return Err(Error::io(
+                            p,
+                            "cannot open population table",
+                            std::io::Error::new(std::io::ErrorKind::NotFound, "no such file"),
+                        ));
+                    }
+                    PooledSplit::Population(p.clone())
+                }
+            };
         let options = serde_json::json!({
             "code_column": args.code_column,
             "state_column": args.state_column,
@@ -487,6 +530,10 @@ impl Config {
             "decimals": args.decimals,
             "missing": data.missing,
             "all_units": args.all_units,
+            "split_by": match &split {
+                PooledSplit::Area => "area".to_string(),
+                PooledSplit::Population(p) => format!("population ({})", p.display()),
+            },
         });
         Ok(Config {
             requests,
@@ -501,6 +548,7 @@ impl Config {
             format,
             report: args.report.clone(),
             options,
+            split,
         })
     }
 }
@@ -1004,18 +1052,56 @@ pub fn execute(config: &Config) -> Result<Report> {
             "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
         ));
     }
+    // Cells of several codes joined by + are pooled reports (composites).
+    let mut composites: Vec<(String, Vec<String>)> = Vec::new();
+    let mut pooled_of: Vec<Option<std::result::Result<usize, String>>> =
+        vec![None; indexed.codes.len()];
+    for (i, raw) in indexed.codes.iter().enumerate() {
+        let member = |text: &str| {
+            let part = RawCode {
+                state: raw.state.clone(),
+                code: text.to_string(),
+            };
+            normalize(form, &part).map_err(|e| e.to_string())
+        };
+        pooled_of[i] = match composite::parse_code(&raw.code, member) {
+            Ok(None) => None,
+            Ok(Some(members)) => {
+                let code = composite::join_codes(&members);
+                let k = match composites.iter().position(|(c, _)| *c == code) {
+                    Some(k) => k,
+                    None => {
+                        composites.push((code, members));
+                        composites.len() - 1
+                    }
+                };
+                Some(Ok(k))
+            }
+            Err(why) => Some(Err(why)),
+        };
+    }
     let read: Vec<std::result::Result<String, FipsError>> = indexed
         .codes
         .iter()
-        .map(|raw| normalize(form, raw))
+        .zip(&pooled_of)
+        .map(|(raw, pooled)| match pooled {
+            Some(Ok(k)) => Ok(composites[*k].0.clone()),
+            Some(Err(_)) => Err(FipsError::NotNumeric(raw.code.clone())),
+            None => normalize(form, raw),
+        })
         .collect();
     check_column_contents(config, &indexed, form, &read)?;
     let normalized: Vec<Option<String>> = read
         .into_iter()
         .zip(indexed.codes.iter().zip(&indexed.code_rows))
-        .map(|(r, (raw, &(rows, first_line)))| match r {
+        .zip(&pooled_of)
+        .map(|((r, (raw, &(rows, first_line))), pooled)| match r {
             Ok(c) => Some(c),
             Err(why) => {
+                let why = match pooled {
+                    Some(Err(text)) => text.clone(),
+                    _ => why.to_string(),
+                };
                 let written = match &raw.state {
                     Some(s) => format!("{s}|{}", raw.code),
                     None => raw.code.clone(),
@@ -1032,8 +1118,13 @@ pub fn execute(config: &Config) -> Result<Report> {
         })
         .collect();
     let mut by_code: BTreeMap<String, (u64, u64)> = BTreeMap::new();
-    for (n, &(rows, first)) in normalized.iter().zip(&indexed.code_rows) {
-        if let Some(n) = n {
+    for ((n, &(rows, first)), pooled) in normalized.iter().zip(&indexed.code_rows).zip(&pooled_of) {
+        // A pooled report reaches the crosswalk through its members.
+        let codes: Vec<&String> = match pooled {
+            Some(Ok(k)) => composites[*k].1.iter().collect(),
+            _ => n.iter().collect(),
+        };
+        for n in codes {
             let e = by_code.entry(n.clone()).or_insert((0, first));
             e.0 += rows;
             e.1 = e.1.min(first);
@@ -1141,10 +1232,59 @@ pub fn execute(config: &Config) -> Result<Report> {
         }
     };
 
+    // Pooled reports: each member's share by area or population.
+    let (pooled, refused) = prepare_pooled(config, &composites, &plan)?;
+    let mut composite_rows: Vec<(u64, u64)> = vec![(0, u64::MAX); composites.len()];
+    for (pooled_k, &(rows, first)) in pooled_of.iter().zip(&indexed.code_rows) {
+        if let Some(Ok(k)) = pooled_k {
+            composite_rows[*k].0 += rows;
+            composite_rows[*k].1 = composite_rows[*k].1.min(first);
+        }
+    }
+    for (code, why) in &refused {
+        if let Some(k) = composites.iter().position(|(c, _)| c == code) {
+            let (rows, first) = composite_rows[k];
+            findings.push(finding(
+                "pooled-left-out",
+                code.clone(),
+                rows,
+                first,
+                why.clone(),
+            ));
+        }
+    }
+    for p in &pooled {
+        if let Some(k) = composites.iter().position(|(c, _)| *c == p.code) {
+            let (rows, first) = composite_rows[k];
+            let shares: Vec<String> = p
+                .members
+                .iter()
+                .map(|&(s, share)| format!("{} {}", plan.sources[s], human(share)))
+                .collect();
+            findings.push(finding(
+                "pooled",
+                p.code.clone(),
+                rows,
+                first,
+                format!(
+                    "a pooled report split among its members by {} (estimates): {}",
+                    p.basis.as_str(),
+                    shares.join(", ")
+                ),
+            ));
+        }
+    }
+
     // Codes the plan does not know.
     let mut source_of: Vec<Option<u32>> = Vec::with_capacity(normalized.len());
     let mut unmatched: BTreeMap<String, (u64, u64)> = BTreeMap::new();
-    for (n, &(rows, first)) in normalized.iter().zip(&indexed.code_rows) {
+    for ((n, &(rows, first)), pooled_k) in normalized.iter().zip(&indexed.code_rows).zip(&pooled_of)
+    {
+        if let Some(Ok(k)) = pooled_k {
+            let j = pooled.iter().position(|p| p.code == composites[*k].0);
+            source_of.push(j.map(|j| (plan.sources.len() + j) as u32));
+            continue;
+        }
         let s = n
             .as_ref()
             .and_then(|c| plan.source_index(c))
@@ -1184,7 +1324,7 @@ pub fn execute(config: &Config) -> Result<Report> {
             ));
         }
     }
-    let cells = indexed.periods.len() as u64 * plan.sources.len() as u64;
+    let cells = indexed.periods.len() as u64 * (plan.sources.len() + pooled.len()) as u64;
     if cells >= u32::MAX as u64 {
         return Err(Error::Usage(format!(
             "{} periods x {} source codes is too many cells to hold; split the table by period",
@@ -1192,7 +1332,41 @@ pub fn execute(config: &Config) -> Result<Report> {
             plan.sources.len()
         )));
     }
-    let folded = table.fold(&indexed, &source_of, plan.sources.len());
+    let mut folded = table.fold(&indexed, &source_of, plan.sources.len() + pooled.len());
+    // Pooled values go to their members: counts split by the shares,
+    // values of means (intensive) copied.
+    let mut pooled_cells = Vec::new();
+    if !pooled.is_empty() {
+        let intensive: Vec<bool> = table
+            .value_columns
+            .iter()
+            .map(|c| {
+                config
+                    .requests
+                    .iter()
+                    .any(|r| matches!(r, Request::Mean { column, .. } if column == c))
+            })
+            .collect();
+        let (values, cells) =
+            composite::spread(&folded.values, plan.sources.len(), &pooled, &intensive);
+        folded.values = values;
+        for c in cells.iter().filter(|c| c.overlap) {
+            findings.push(Finding {
+                kind: "pooled-overlap",
+                code: plan.sources[c.source].clone(),
+                period: indexed.periods[c.period].clone(),
+                rows: 0,
+                first_line: None,
+                detail: format!(
+                    "this unit has its own row and a share of the pooled report {} in this period; both were added (the same land counted twice?)",
+                    pooled[c.pooled].code
+                ),
+            });
+        }
+        pooled_cells = cells;
+    }
+    let pooled_set: BTreeSet<(usize, usize)> =
+        pooled_cells.iter().map(|c| (c.source, c.period)).collect();
 
     // Duplicates.
     let with_period = config.data.period_column.is_some();
@@ -1251,10 +1425,25 @@ pub fn execute(config: &Config) -> Result<Report> {
     };
 
     // Write.
-    let (header, notes) = output_header(config, extra_names.is_some());
+    let (mut header, notes) = output_header(config, extra_names.is_some());
+    // Beside each figure: the pooled reports it was split from, if any.
+    let pooled_from = (!pooled.is_empty()).then(|| {
+        if !header.iter().any(|h| h == "pooled_from") {
+            header.push("pooled_from".into());
+        } else {
+            header.push("rk_pooled_from".into());
+        }
+        composite::pooled_labels(
+            plan.targets.len(),
+            |t| plan.links_of(t).iter().map(|l| l.source as usize).collect(),
+            &pooled_cells,
+            &pooled,
+        )
+    });
     let layout = ResultLayout {
         header,
         notes,
+        pooled_from,
         with_period,
         target_names: extra_names,
         numbers: config.numbers,
@@ -1318,7 +1507,9 @@ pub fn execute(config: &Config) -> Result<Report> {
         }
     }
     for (s, code) in plan.sources.iter().enumerate() {
-        let absent: Vec<usize> = (0..periods).filter(|&p| folded.cell(p, s).0 == 0).collect();
+        let absent: Vec<usize> = (0..periods)
+            .filter(|&p| folded.cell(p, s).0 == 0 && !pooled_set.contains(&(s, p)))
+            .collect();
         if absent.is_empty() {
             continue;
         }
@@ -1443,7 +1634,7 @@ pub fn execute(config: &Config) -> Result<Report> {
     let mut report = Report {
         rows: table.rows as u64,
         rows_allocated: (0..periods)
-            .flat_map(|p| (0..plan.sources.len()).map(move |s| (p, s)))
+            .flat_map(|p| (0..plan.sources.len() + pooled.len()).map(move |s| (p, s)))
             .map(|(p, s)| folded.cell(p, s).0 as u64)
             .sum(),
         targets: plan.targets.len(),
@@ -1472,6 +1663,44 @@ pub fn execute(config: &Config) -> Result<Report> {
     }
     staged.commit()?;
     Ok(report)
+}
+
+/// The pooled reports of the data prepared for allocation: members'
+/// source indices and shares (by area of the built-in county geometry, or
+/// by the populations given), and the composites that cannot be split,
+/// with the reason.
+fn prepare_pooled(
+    config: &Config,
+    composites: &[(String, Vec<String>)],
+    plan: &Plan,
+) -> Result<(Vec<composite::Pooled>, composite::Refused)> {
+    if composites.is_empty() {
+        return Ok((Vec::new(), Vec::new()));
+    }
+    let (sizes, basis) = match &config.split {
+        PooledSplit::Area => {
+            // A member's area in the 2023 layer, else in the 2017 one.
+            let newer = composites_io::builtin_areas("builtin:counties-2023")?;
+            let older = composites_io::builtin_areas("builtin:counties-2017")?;
+            let mut sizes = BTreeMap::new();
+            for m in composites.iter().flat_map(|(_, m)| m) {
+                if let Some(a) = newer.get(m).or_else(|| older.get(m)) {
+                    sizes.insert(m.clone(), *a);
+                }
+            }
+            (sizes, composite::SplitBasis::Area)
+        }
+        PooledSplit::Population(path) => (
+            composites_io::read_sizes(path, "code", "population")?,
+            composite::SplitBasis::Population,
+        ),
+    };
+    Ok(composite::prepare_pooled(
+        composites,
+        |m| plan.source_index(m),
+        |m| sizes.get(m).copied().filter(|s| *s > 0.0),
+        basis,
+    ))
 }
 
 /// A number for a person to read: ten significant digits at most.

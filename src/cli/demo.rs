@@ -316,7 +316,39 @@ const REPORTED: &[Reported] = &[
         gaps: &[],
         size: 800,
     },
+    // Two small Alaska boroughs reported together (a pooled report).
+    Reported {
+        network: WEST,
+        state: "AK",
+        names: &[(2012, 2023, "Bristol Bay + Lake and Peninsula")],
+        gaps: &[],
+        size: 900,
+    },
 ];
+
+/// The networks' service areas, made of 2023 counties (part of the
+/// scenario): (area code, county code).
+const SERVICE_AREAS: &[(&str, &str)] = &[
+    ("AK-SOUTHCENTRAL", "02020"),
+    ("AK-SOUTHCENTRAL", "02063"),
+    ("AK-SOUTHCENTRAL", "02066"),
+    ("AK-SOUTHCENTRAL", "02170"),
+    ("AK-SOUTHWEST", "02060"),
+    ("AK-SOUTHWEST", "02164"),
+    ("LA-METRO", "22051"),
+    ("LA-METRO", "22071"),
+    ("MO-STLOUIS", "29189"),
+    ("MO-STLOUIS", "29510"),
+];
+
+/// The service areas as a membership list.
+pub fn service_areas_csv() -> String {
+    let mut text = String::from("unit,group\n");
+    for (group, unit) in SERVICE_AREAS {
+        let _ = writeln!(text, "{unit},{group}");
+    }
+    text
+}
 
 /// Decisions the analyst made on the first review list (part of the scenario).
 const DECISIONS: &[(&str, &str, &str, &str)] = &[
@@ -432,8 +464,10 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         .map_err(|e| Error::io(dir, "cannot create the demo folder", e))?;
     let reports = dir.join("input/food-bank-reports.csv");
     let decisions = dir.join("input/decisions.csv");
+    let areas = dir.join("input/service-areas.csv");
     write_text(&reports, &reports_csv())?;
     write_text(&decisions, &decisions_csv())?;
+    write_text(&areas, &service_areas_csv())?;
     say(
         global,
         format!(
@@ -493,8 +527,49 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         skip_unweighted: false,
         output: arg(&harmonized),
         report: Some(apply_report.clone()),
+        split_by: super::group::WeightBy::Area,
+        population: None,
     };
     let config = super::apply::Config::from_args(&apply)?;
+    let done = super::apply::execute(&config)?;
+    for line in super::apply::summary_lines(&config, &done) {
+        say(global, line);
+    }
+
+    // 2b. Gather the county figures into the networks' service areas.
+    say(
+        global,
+        "\n== 2b. gather the 2023 county figures into the networks' service areas",
+    );
+    let to_areas = dir.join("service-areas-from-counties.csv");
+    super::group::run(
+        super::group::Args {
+            members: areas.clone(),
+            to_groups: Some(to_areas.clone()),
+            to_units: Some(dir.join("counties-from-service-areas.csv")),
+            unit_column: "unit".into(),
+            group_column: "group".into(),
+            share_column: "share".into(),
+            vintage: 2023,
+            weight: super::group::WeightBy::Area,
+            population: None,
+            population_code_column: "code".into(),
+            population_column: "population".into(),
+        },
+        global,
+    )?;
+    let by_area = dir.join("service-areas.csv");
+    let group_apply = super::apply::Args {
+        data: harmonized.clone(),
+        crosswalk: Some(to_areas.clone()),
+        to_vintage: None,
+        sums: vec!["households_eligible".into(), "households_served".into()],
+        ratios: vec!["served_share=households_served/households_eligible".into()],
+        output: arg(&by_area),
+        report: Some(dir.join("service-areas-report.csv")),
+        ..apply.clone()
+    };
+    let config = super::apply::Config::from_args(&group_apply)?;
     let done = super::apply::execute(&config)?;
     for line in super::apply::summary_lines(&config, &done) {
         say(global, line);
@@ -589,6 +664,7 @@ fn summarize(
     harmonized: &Path,
     apply_report: &Path,
 ) -> Result<String> {
+    let by_area = &dir.join("service-areas.csv");
     let rows = read_table(reports, ReadOptions::default())?.len();
     let first = read_table(first_review, ReadOptions::default())?.len();
     let status = count_by(matched, "match_status")?;
@@ -669,6 +745,63 @@ fn summarize(
             partial.len() - 25
         );
     }
+    let _ = writeln!(s);
+    // The pooled report and the service areas.
+    let pooled_col = out.column("pooled_from").ok();
+    let mut pooled: BTreeMap<String, Vec<String>> = BTreeMap::new();
+    if let Some(pc) = pooled_col {
+        for r in &out.records {
+            if !r[pc].is_empty() {
+                pooled
+                    .entry(r[pc].to_string())
+                    .or_default()
+                    .push(r[code].to_string());
+            }
+        }
+    }
+    for (from, codes) in &pooled {
+        let mut members = codes.clone();
+        members.sort();
+        members.dedup();
+        let _ = writeln!(
+            s,
+            "   Pooled report {from}: split among {} ({} estimates; pooled_from says so beside each).",
+            members.join(", "),
+            codes.len()
+        );
+    }
+    let areas = read_table(by_area, ReadOptions::default())?;
+    let (acode, ayear, acov) = (
+        areas.column("code")?,
+        areas.column("year")?,
+        areas.column("households_served_coverage")?,
+    );
+    let mut thin: Vec<String> = Vec::new();
+    for r in &areas.records {
+        let c: f64 = r[acov].parse().unwrap_or(0.0);
+        if c < 1.0 - 1e-9 {
+            thin.push(format!("{} {} ({:.3})", &r[acode], &r[ayear], c));
+        }
+    }
+    let _ = writeln!(s);
+    let _ = writeln!(
+        s,
+        "2b. Service areas (input/service-areas.csv, counties -> areas by area: service-areas.csv)"
+    );
+    let _ = writeln!(
+        s,
+        "   {} rows of (service area, year) figures: the sum of the counties with figures; coverage is",
+        areas.len()
+    );
+    let _ = writeln!(
+        s,
+        "   the part of the area (by land area) whose counties had a figure. Below 1: {}.",
+        if thin.is_empty() {
+            "none".to_string()
+        } else {
+            thin.join(", ")
+        }
+    );
     let _ = writeln!(s);
     let _ = writeln!(
         s,

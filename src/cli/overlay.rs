@@ -381,8 +381,12 @@ pub struct Report {
 /// sidecar last).
 pub fn execute(config: &Config) -> Result<Report> {
     let mut warnings = Vec::new();
-    let (from_prep, from) = read_prepared(&config.from, config.repeated, &mut warnings)?;
-    let (to_prep, to) = read_prepared(&config.to, config.repeated, &mut warnings)?;
+    // One layer after the other: a parsed JSON document takes several times
+    // the memory of its polygons, so only one is held at a time.
+    let (from_prep, from, from_warnings) = read_prepared(&config.from, config.repeated)?;
+    let (to_prep, to, to_warnings) = read_prepared(&config.to, config.repeated)?;
+    warnings.extend(from_warnings);
+    warnings.extend(to_warnings);
     let (weighting, population_sha256) = match &config.population {
         Some((spec, field)) => {
             let (layer, sha) = population::read(spec, field)?;
@@ -466,8 +470,8 @@ pub fn execute(config: &Config) -> Result<Report> {
 fn read_prepared(
     req: &LayerRequest,
     repeated: RepeatedKeys,
-    warnings: &mut Vec<String>,
-) -> Result<(PreparedLayer, LayerInfo)> {
+) -> Result<(PreparedLayer, LayerInfo, Vec<String>)> {
+    let mut warnings = Vec::new();
     let mut layer = read_layer(req)?;
     let keys = layer.normalize_keys()?;
     if keys.repaired > 0 {
@@ -482,7 +486,7 @@ fn read_prepared(
     warnings.extend(layer.notes(repeated, Some("--repeated-keys"))?);
     let info = LayerInfo::of(&layer, keys);
     let prepared = prepare(&layer.features, layer.convention);
-    Ok((prepared, info))
+    Ok((prepared, info, warnings))
 }
 
 fn report_items(

@@ -854,6 +854,9 @@ pub fn spread(
     (out, cells)
 }
 
+/// Composites that cannot be split: (code, why).
+pub type Refused = Vec<(String, String)>;
+
 /// Prepares the pooled sources of a table for [`spread`]: each composite
 /// (code, members) gets its members' source indices (`source_index`) and
 /// shares by `size`. A composite with a member that is no source, or with
@@ -864,7 +867,7 @@ pub fn prepare_pooled(
     source_index: impl Fn(&str) -> Option<usize>,
     size: impl Fn(&str) -> Option<f64>,
     basis: SplitBasis,
-) -> (Vec<Pooled>, Vec<(String, String)>) {
+) -> (Vec<Pooled>, Refused) {
     let mut ok = Vec::new();
     let mut refused = Vec::new();
     for (code, members) in composites {
@@ -1211,6 +1214,56 @@ mod tests {
         assert_eq!(out.get(0, 1, 1), Some(0.2));
         assert_eq!(cells.len(), 2);
         assert!(cells.iter().all(|c| !c.overlap));
+    }
+
+    proptest::proptest! {
+        /// With full coverage, the members of a split composite add up to
+        /// the composite's figure, through allocation onto the members too.
+        #[test]
+        fn a_split_composite_conserves_its_figure(
+            sizes in proptest::collection::vec(0.01f64..1.0e4, 2..9),
+            value in -1.0e6f64..1.0e6,
+            rate in 0.0f64..1.0,
+        ) {
+            use crate::core::allocate::{allocate, Measure, Origin, Plan, Spec};
+            use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
+            let codes: Vec<String> = (0..sizes.len()).map(|i| format!("M{i}")).collect();
+            let sh = shares(&codes, |c| codes.iter().position(|x| x == c).map(|i| sizes[i])).unwrap();
+            let pooled = [Pooled {
+                code: join_codes(&codes),
+                members: sh.iter().copied().enumerate().collect(),
+                basis: SplitBasis::Area,
+            }];
+            let n = codes.len();
+            let mut v = SourceValues::new(1, n + 1, 2);
+            v.add(0, n, 0, value);
+            v.add(0, n, 1, rate);
+            let (out, cells) = spread(&v, n, &pooled, &[false, true]);
+            proptest::prop_assert_eq!(cells.len(), n);
+            let total: f64 = (0..n).map(|m| out.get(0, m, 0).unwrap()).sum();
+            proptest::prop_assert!((total - value).abs() <= 1e-9 * value.abs().max(1.0));
+            // Onto the members themselves (identity rows).
+            let cw = Crosswalk {
+                rows: codes.iter().map(|c| CrosswalkRow {
+                    from_code: c.clone(),
+                    to_code: Some(c.clone()),
+                    weight: 1.0,
+                    target_share: Some(1.0),
+                    basis: Basis::Area,
+                }).collect(),
+            };
+            let plan = Plan::new(&cw, &[], |_| Origin::Direct);
+            let a = allocate(&plan, &out, &Spec { measures: vec![Measure::Count(0)], min_coverage: 0.0 });
+            let mut sum = 0.0;
+            for t in 0..n {
+                let e = a.get(t, 0, 0);
+                proptest::prop_assert_eq!(e.coverage, 1.0);
+                sum += e.value.unwrap();
+                // An intensive value is every member's.
+                proptest::prop_assert_eq!(out.get(0, t, 1), Some(rate));
+            }
+            proptest::prop_assert!((sum - value).abs() <= 1e-9 * value.abs().max(1.0));
+        }
     }
 
     #[test]

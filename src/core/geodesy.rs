@@ -143,6 +143,27 @@ impl Ellipsoid {
         -self.a * self.a / 2.0 * sum
     }
 
+    /// Signed area of a ring given as `[longitude, latitude]` pairs, closed
+    /// or not (see [`Ellipsoid::ring_area_signed`]).
+    pub fn ring_area_signed_xy(&self, c: &[[f64; 2]]) -> f64 {
+        let n = c.len();
+        if n < 3 {
+            return 0.0;
+        }
+        let q_ref = self.q(c[0][1].to_radians());
+        let mut sum = 0.0;
+        for i in 0..n {
+            let a = c[i];
+            let b = c[(i + 1) % n];
+            let dl = (b[0] - a[0]).to_radians();
+            if dl == 0.0 {
+                continue;
+            }
+            sum += dl * (self.mean_q(a[1].to_radians(), b[1].to_radians()) - q_ref);
+        }
+        -self.a * self.a / 2.0 * sum
+    }
+
     /// Signed area of a `geo` ring (see [`Ellipsoid::ring_area_signed`]).
     pub fn line_string_area_signed(&self, ring: &LineString<f64>) -> f64 {
         // Avoid an allocation: the same sum over the coordinates in place.

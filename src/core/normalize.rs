@@ -26,7 +26,7 @@ use unicode_normalization::char::is_combining_mark;
 use unicode_normalization::UnicodeNormalization;
 
 /// A word of a normalized name.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
 pub struct Token {
     /// The word: lower case ASCII letters and digits (other letters kept as
     /// they are after removing diacritics).
@@ -34,6 +34,11 @@ pub struct Token {
     /// True when a strong separator (`,` `:` `;` `/` `(` `)` `|` or a dash
     /// next to a space) stood between this word and the one before it.
     pub after_separator: bool,
+    /// True when a period followed the word ("N." "Mt."): a mark of an
+    /// abbreviation.
+    pub dotted: bool,
+    /// True when every letter of the word was written upper case ("E").
+    pub upper: bool,
 }
 
 /// Windows-1252 bytes 0x80..=0x9F and the characters they decode to.
@@ -122,32 +127,52 @@ pub fn tokens(text: &str) -> Vec<Token> {
     let mut out: Vec<Token> = Vec::new();
     let mut word = String::new();
     let mut separator = false;
-    fn flush(word: &mut String, separator: &mut bool, out: &mut Vec<Token>) {
+    // Every letter of the word so far upper case (and at least one letter).
+    let mut upper = true;
+    let flush = |word: &mut String,
+                 separator: &mut bool,
+                 upper: &mut bool,
+                 dotted: bool,
+                 out: &mut Vec<Token>| {
         if !word.is_empty() {
             out.push(Token {
                 text: canonical_word(std::mem::take(word)),
                 after_separator: *separator,
+                dotted,
+                upper: *upper,
             });
             *separator = false;
         }
-    }
+        *upper = true;
+    };
     for (i, &c) in chars.iter().enumerate() {
         if is_apostrophe(c) {
             // Dropped inside a word: "George's" = "Georges", "Hawaiʻi" = "Hawaii".
             // (Checked first: the ʻokina is a modifier letter, alphanumeric.)
+            // A French or Italian elision ("l'Ain", "d'Oise") ends its
+            // one-letter word, so "de l'Ain" reads as "de", "l", "ain"; the
+            // compact key is the same either way.
+            let elided = matches!(word.as_str(), "l" | "d")
+                && chars.get(i + 1).is_some_and(|n| n.is_alphabetic());
+            if elided {
+                flush(&mut word, &mut separator, &mut upper, false, &mut out);
+            }
         } else if c.is_ascii_alphanumeric() {
+            upper &= !c.is_ascii_lowercase();
             word.push(c.to_ascii_lowercase());
         } else if c.is_alphanumeric() {
+            upper &= !c.is_lowercase();
             word.extend(c.to_lowercase());
         } else if c == '&' {
-            flush(&mut word, &mut separator, &mut out);
+            flush(&mut word, &mut separator, &mut upper, false, &mut out);
             out.push(Token {
                 text: "and".to_string(),
                 after_separator: separator,
+                ..Token::default()
             });
             separator = false;
         } else {
-            flush(&mut word, &mut separator, &mut out);
+            flush(&mut word, &mut separator, &mut upper, c == '.', &mut out);
             let spaced = |j: Option<usize>| {
                 j.and_then(|j| chars.get(j))
                     .is_some_and(|c| c.is_whitespace())
@@ -160,7 +185,7 @@ pub fn tokens(text: &str) -> Vec<Token> {
             }
         }
     }
-    flush(&mut word, &mut separator, &mut out);
+    flush(&mut word, &mut separator, &mut upper, false, &mut out);
     out
 }
 
@@ -176,6 +201,119 @@ pub fn compact<'a>(words: impl IntoIterator<Item = &'a Token>) -> String {
 /// The compact key of a text: `compact(&tokens(text))`.
 pub fn key(text: &str) -> String {
     compact(&tokens(text))
+}
+
+/// When an abbreviation of [`abbreviations`] is read as its long form.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum AbbreviationUse {
+    /// Wherever the word stands ("Mt", "Spgs").
+    Always,
+    /// Only when written upper case or with a period ("E. Orange",
+    /// "E BATON ROUGE", not the Italian "e" of "Pesaro e Urbino").
+    UpperOrDot,
+    /// Only when written with a period ("No. Platte", not the word "no").
+    Dot,
+}
+
+/// A word abbreviated inside place names and its long form ("mt" ->
+/// "mount"), from `reference/abbreviations.csv` (which names the source of
+/// each pair).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Abbreviation {
+    /// The abbreviation, as a normalized word ("mt").
+    pub short: &'static str,
+    /// The long form, as a normalized word ("mount").
+    pub long: &'static str,
+    /// When the short form is read as the long one.
+    pub when: AbbreviationUse,
+}
+
+impl Abbreviation {
+    /// True when the written word `t` is this abbreviation.
+    pub fn applies_to(&self, t: &Token) -> bool {
+        t.text == self.short
+            && match self.when {
+                AbbreviationUse::Always => true,
+                AbbreviationUse::UpperOrDot => t.upper || t.dotted,
+                AbbreviationUse::Dot => t.dotted,
+            }
+    }
+}
+
+const ABBREVIATIONS_CSV: &str = include_str!("../../reference/abbreviations.csv");
+
+/// The table of abbreviated words (`reference/abbreviations.csv`: columns
+/// `short,long,when,source`). A malformed row is a build defect, caught by
+/// this module's tests.
+pub fn abbreviations() -> &'static [Abbreviation] {
+    static TABLE: std::sync::OnceLock<Vec<Abbreviation>> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| {
+        ABBREVIATIONS_CSV
+            .lines()
+            .skip(1)
+            .filter(|l| !l.trim().is_empty())
+            .filter_map(|l| {
+                let mut f = l.splitn(4, ',');
+                let short = f.next()?.trim();
+                let long = f.next()?.trim();
+                let when = match f.next()?.trim() {
+                    "always" => AbbreviationUse::Always,
+                    "upper-or-dot" => AbbreviationUse::UpperOrDot,
+                    "dot" => AbbreviationUse::Dot,
+                    _ => return None,
+                };
+                Some(Abbreviation { short, long, when })
+            })
+            .collect()
+    })
+}
+
+/// The optimal-string-alignment edit distance (insertions, deletions,
+/// substitutions and transpositions of adjacent letters, each one edit)
+/// between `a` and `b`, counted up to `cap`: any distance above `cap` is
+/// reported as `cap + 1`. "cuonty" -> "county" is one edit.
+pub fn edits(a: &str, b: &str, cap: usize) -> usize {
+    if a.is_ascii() && b.is_ascii() {
+        edits_of(a.as_bytes(), b.as_bytes(), cap)
+    } else {
+        let a: Vec<char> = a.chars().collect();
+        let b: Vec<char> = b.chars().collect();
+        edits_of(&a, &b, cap)
+    }
+}
+
+fn edits_of<T: PartialEq>(a: &[T], b: &[T], cap: usize) -> usize {
+    let over = cap + 1;
+    if a.len().abs_diff(b.len()) > cap {
+        return over;
+    }
+    let w = b.len() + 1;
+    // Three rows of the dynamic programme: two back, one back, this one.
+    let mut rows = vec![0usize; 3 * w];
+    for (j, x) in rows[w..2 * w].iter_mut().enumerate() {
+        *x = j;
+    }
+    for i in 1..=a.len() {
+        let (back2, rest) = rows.split_at_mut(w);
+        let (back1, cur) = rest.split_at_mut(w);
+        cur[0] = i;
+        let mut row_min = cur[0];
+        for j in 1..=b.len() {
+            let cost = usize::from(a[i - 1] != b[j - 1]);
+            let mut d = (back1[j] + 1).min(cur[j - 1] + 1).min(back1[j - 1] + cost);
+            if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                d = d.min(back2[j - 2] + 1);
+            }
+            cur[j] = d;
+            row_min = row_min.min(d);
+        }
+        if row_min > cap {
+            return over;
+        }
+        rows.rotate_left(w);
+    }
+    // After the last rotation the latest row sits in the middle third.
+    rows[w + b.len()].min(over)
 }
 
 /// Words that stand for "no place" in agency tables: totals, unknowns,
@@ -306,6 +444,60 @@ mod tests {
     }
 
     #[test]
+    fn the_abbreviation_table_parses_and_names_a_source_for_every_pair() {
+        let table = abbreviations();
+        let rows = ABBREVIATIONS_CSV
+            .lines()
+            .skip(1)
+            .filter(|l| !l.trim().is_empty());
+        assert_eq!(table.len(), rows.clone().count(), "a malformed row");
+        for row in rows {
+            let source = row.splitn(4, ',').nth(3).unwrap_or("");
+            assert!(
+                source.contains("USPS Publication 28") || source.contains("common practice"),
+                "{row}"
+            );
+        }
+        // Normalized words on both sides, and no short form used twice.
+        let mut shorts = std::collections::HashSet::new();
+        for a in table {
+            // ("ft" is read as "fort" by the tokenizer already.)
+            assert!(
+                key(a.short) == a.short || key(a.short) == a.long,
+                "{}",
+                a.short
+            );
+            assert_eq!(key(a.long), a.long);
+            assert!(shorts.insert(a.short), "{} twice", a.short);
+        }
+        let mt = table.iter().find(|a| a.short == "mt").unwrap();
+        assert_eq!((mt.long, mt.when), ("mount", AbbreviationUse::Always));
+    }
+
+    #[test]
+    fn single_letter_compass_words_need_capitals_or_a_period() {
+        let e = abbreviations().iter().find(|a| a.short == "e").unwrap();
+        let t = tokens("E. Orange");
+        assert!(t[0].dotted && e.applies_to(&t[0]));
+        assert!(e.applies_to(&tokens("E BATON ROUGE")[0]));
+        // The Italian "e" (and) of "Pesaro e Urbino" is no compass word.
+        assert!(!e.applies_to(&tokens("Pesaro e Urbino")[1]));
+        let no = abbreviations().iter().find(|a| a.short == "no").unwrap();
+        assert!(no.applies_to(&tokens("No. Platte")[0]));
+        assert!(!no.applies_to(&tokens("NO PLATTE")[0]));
+    }
+
+    #[test]
+    fn a_french_elision_ends_its_one_letter_word_but_keeps_the_key() {
+        assert_eq!(
+            words("Département de l'Ain"),
+            ["departement", "de", "l", "ain"]
+        );
+        assert_eq!(key("Val-d'Oise"), "valdoise");
+        assert_eq!(words("Prince George's"), ["prince", "georges"]);
+    }
+
+    #[test]
     fn placeholders_are_recognized_in_any_spelling() {
         for p in [
             "Statewide",
@@ -322,6 +514,71 @@ mod tests {
         }
         for p in ["Cook", "Washington", "Otero"] {
             assert!(!is_placeholder(p), "{p:?}");
+        }
+    }
+}
+
+#[cfg(test)]
+mod edit_tests {
+    use super::*;
+
+    /// Naive twin: the textbook optimal-string-alignment distance, uncapped.
+    fn osa(a: &str, b: &str) -> usize {
+        let a: Vec<char> = a.chars().collect();
+        let b: Vec<char> = b.chars().collect();
+        let mut d = vec![vec![0usize; b.len() + 1]; a.len() + 1];
+        for (i, row) in d.iter_mut().enumerate() {
+            row[0] = i;
+        }
+        for (j, x) in d[0].iter_mut().enumerate() {
+            *x = j;
+        }
+        for i in 1..=a.len() {
+            for j in 1..=b.len() {
+                let cost = usize::from(a[i - 1] != b[j - 1]);
+                d[i][j] = (d[i - 1][j] + 1)
+                    .min(d[i][j - 1] + 1)
+                    .min(d[i - 1][j - 1] + cost);
+                if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
+                    d[i][j] = d[i][j].min(d[i - 2][j - 2] + 1);
+                }
+            }
+        }
+        d[a.len()][b.len()]
+    }
+
+    #[test]
+    fn capped_edits_agree_with_the_textbook_distance() {
+        let words = [
+            "",
+            "a",
+            "ravenna",
+            "ravnna",
+            "bergamo",
+            "beragmo",
+            "county",
+            "cuonty",
+            "countey",
+            "parish",
+            "parrish",
+            "borough",
+            "burrough",
+            "municipio",
+            "munisipio",
+            "mayagüez",
+            "mayaguez",
+            "ab",
+            "ba",
+            "abc",
+            "ca",
+        ];
+        for a in words {
+            for b in words {
+                for cap in 0..5 {
+                    let want = osa(a, b).min(cap + 1);
+                    assert_eq!(edits(a, b, cap), want, "{a} {b} cap {cap}");
+                }
+            }
         }
     }
 }

@@ -575,13 +575,18 @@ fn intersect_source(
             ) else {
                 continue;
             };
-            let inter = boolean::intersection(a.as_ref(), b.as_ref());
-            let a = WGS84.multi_polygon_area(&inter);
-            if a > 0.0 {
-                let e = by_target.entry(t).or_default();
-                e.0 += a;
-                if keep {
+            if keep {
+                let inter = boolean::intersection(a.as_ref(), b.as_ref());
+                let a = WGS84.multi_polygon_area(&inter);
+                if a > 0.0 {
+                    let e = by_target.entry(t).or_default();
+                    e.0 += a;
                     e.1.extend(inter.0);
+                }
+            } else {
+                let a = boolean::intersection_area(a.as_ref(), b.as_ref());
+                if a > 0.0 {
+                    by_target.entry(t).or_default().0 += a;
                 }
             }
         }

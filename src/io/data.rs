@@ -688,6 +688,10 @@ pub struct ResultLayout {
     pub numbers: NumberFormat,
     /// Field delimiter of the text output (`,` or tab).
     pub delimiter: u8,
+    /// When the data hold pooled reports (codes joined by `+`): for each
+    /// (target, period) the reports its figures were split from, written
+    /// in a last column (empty where none).
+    pub pooled_from: Option<std::collections::BTreeMap<(usize, usize), String>>,
 }
 
 /// Decimals for coverage.
@@ -818,6 +822,12 @@ pub fn write_results_parquet(
             columns.push(Column::new(name(), vec![note.clone(); rows]));
         }
     }
+    if let Some(pooled) = &layout.pooled_from {
+        columns.push(Column::new(
+            name(),
+            each(&|t, p| pooled.get(&(t, p)).cloned().unwrap_or_default()),
+        ));
+    }
     let mut df = DataFrame::new_infer_height(columns).map_err(std::io::Error::other)?;
     ParquetWriter::new(w)
         .finish(&mut df)
@@ -861,6 +871,12 @@ fn format_targets(
                 if let Some(note) = &layout.notes[m] {
                     buf.push(d);
                     buf.extend_from_slice(field(note, d).as_bytes());
+                }
+            }
+            if let Some(pooled) = &layout.pooled_from {
+                buf.push(d);
+                if let Some(text) = pooled.get(&(t, p)) {
+                    buf.extend_from_slice(field(text, d).as_bytes());
                 }
             }
             buf.push(b'\n');

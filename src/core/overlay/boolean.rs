@@ -13,6 +13,8 @@ use i_overlay::core::overlay_rule::OverlayRule;
 use i_overlay::core::solver::Solver;
 use i_overlay::float::overlay::{FloatOverlay, OverlayOptions};
 
+use crate::core::geodesy::WGS84;
+
 fn paths<'a>(polys: impl IntoIterator<Item = &'a Polygon<f64>>) -> Vec<Vec<[f64; 2]>> {
     let mut out = Vec::new();
     for p in polys {
@@ -35,19 +37,27 @@ fn ring(path: Vec<[f64; 2]>) -> LineString<f64> {
     LineString::new(v)
 }
 
+fn shapes(
+    subject: Vec<Vec<[f64; 2]>>,
+    clip: Vec<Vec<[f64; 2]>>,
+    rule: OverlayRule,
+    fill: FillRule,
+) -> Vec<Vec<Vec<[f64; 2]>>> {
+    let solver = Solver {
+        multithreading: None,
+        ..Solver::AUTO
+    };
+    FloatOverlay::with_subj_and_clip_custom(&subject, &clip, OverlayOptions::ogc(), solver)
+        .overlay(rule, fill)
+}
+
 fn run(
     subject: Vec<Vec<[f64; 2]>>,
     clip: Vec<Vec<[f64; 2]>>,
     rule: OverlayRule,
     fill: FillRule,
 ) -> MultiPolygon<f64> {
-    let solver = Solver {
-        multithreading: None,
-        ..Solver::AUTO
-    };
-    let shapes =
-        FloatOverlay::with_subj_and_clip_custom(&subject, &clip, OverlayOptions::ogc(), solver)
-            .overlay(rule, fill);
+    let shapes = shapes(subject, clip, rule, fill);
     MultiPolygon::new(
         shapes
             .into_iter()
@@ -69,6 +79,28 @@ pub fn intersection(a: &Polygon<f64>, b: &Polygon<f64>) -> MultiPolygon<f64> {
         OverlayRule::Intersect,
         FillRule::EvenOdd,
     )
+}
+
+/// The area (m², see `core::geodesy`) of `a ∩ b`, without building the
+/// pieces as polygons: the same as measuring [`intersection`].
+pub fn intersection_area(a: &Polygon<f64>, b: &Polygon<f64>) -> f64 {
+    let found = shapes(
+        paths([a]),
+        paths([b]),
+        OverlayRule::Intersect,
+        FillRule::EvenOdd,
+    );
+    found
+        .iter()
+        .map(|shape| {
+            let mut rings = shape.iter();
+            let outer = rings
+                .next()
+                .map_or(0.0, |r| WGS84.ring_area_signed_xy(r).abs());
+            let holes: f64 = rings.map(|r| WGS84.ring_area_signed_xy(r).abs()).sum();
+            (outer - holes).max(0.0)
+        })
+        .sum()
 }
 
 /// `a ∩ b` of two multipolygons (even-odd rule).
