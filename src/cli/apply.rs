@@ -116,6 +116,20 @@ pub struct Args {
     /// Write every reported row (kind, code, period, rows, first_line, detail) here as CSV.
     #[arg(long)]
     pub report: Option<PathBuf>,
+    /// Instead of allocating, write to --output the SQL query (duckdb,
+    /// spark or ansi) that does the same allocation, coverage and ratios in
+    /// a database engine, on the data and the crosswalk as tables. DATA is
+    /// read only for its column names.
+    #[arg(long, value_name = "DIALECT", requires = "crosswalk", conflicts_with_all = ["to_vintage", "report"])]
+    pub emit_sql: Option<String>,
+    /// With --emit-sql: the names of the data and crosswalk tables in the engine.
+    #[arg(
+        long,
+        value_name = "DATA,CROSSWALK",
+        default_value = "data,crosswalk",
+        requires = "emit_sql"
+    )]
+    pub sql_tables: String,
     /// How a pooled report (a code cell of several codes joined by +, such as
     /// 36005+36047+36061+36081+36085) is split among its members: by area
     /// (the built-in county geometry) or by population (--population FILE).
@@ -458,7 +472,11 @@ impl Config {
         let data = data::resolve_columns(&data)?;
         let output = Target::parse(&args.output);
         output.check_writable()?;
-        let format = OutputFormat::from_target(&output)?;
+        // With --emit-sql the output is the query, whatever its extension.
+        let format = match args.emit_sql {
+            Some(_) => OutputFormat::Csv,
+            None => OutputFormat::from_target(&output)?,
+        };
         if let Some(r) = &args.report {
             Target::File(r.clone()).check_writable()?;
             if Target::File(r.clone()) == output {
@@ -1042,11 +1060,7 @@ pub fn execute(config: &Config) -> Result<Report> {
     }
 
     // Normalize the distinct codes.
-    let form = match (&config.crosswalk, config.to_vintage) {
-        (_, Some(_)) => CodeForm::County,
-        (Some((_, cw)), None) => CodeForm::detect(cw.rows.iter().map(|r| r.from_code.as_str())),
-        (None, None) => CodeForm::Plain,
-    };
+    let form = form_of(config);
     if config.data.state_column.is_some() && form != CodeForm::County {
         return Err(Error::Usage(
             "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
@@ -1708,9 +1722,93 @@ fn human(v: f64) -> String {
     NumberFormat::Significant(10).format(v)
 }
 
+/// How the data's codes are read for a crosswalk (as [`execute`] reads them).
+fn form_of(config: &Config) -> CodeForm {
+    match (&config.crosswalk, config.to_vintage) {
+        (_, Some(_)) => CodeForm::County,
+        (Some((_, cw)), None) => CodeForm::detect(cw.rows.iter().map(|r| r.from_code.as_str())),
+        (None, None) => CodeForm::Plain,
+    }
+}
+
+/// Writes the query of `--emit-sql`.
+fn emit_sql(args: &Args, config: &Config, dialect: &str, global: Global) -> Result<()> {
+    if config.data.state_column.is_some() && form_of(config) != CodeForm::County {
+        return Err(Error::Usage(
+            "--state-column joins a state and a county part into a county code, but the crosswalk's codes are not five-digit county codes".into(),
+        ));
+    }
+    use crate::core::sql;
+    let dialect: sql::Dialect = dialect
+        .parse()
+        .map_err(|e: String| Error::Usage(format!("--emit-sql: {e}")))?;
+    let (data_table, crosswalk_table) = args
+        .sql_tables
+        .split_once(',')
+        .map(|(d, c)| (d.trim().to_string(), c.trim().to_string()))
+        .filter(|(d, c)| !d.is_empty() && !c.is_empty())
+        .ok_or_else(|| {
+            Error::Usage(format!(
+                "--sql-tables {:?}: give two table names separated by a comma",
+                args.sql_tables
+            ))
+        })?;
+    let codes = match form_of(config) {
+        CodeForm::County => sql::CodeForm::County,
+        CodeForm::State => sql::CodeForm::State,
+        CodeForm::Digits(w) => sql::CodeForm::Digits(w),
+        CodeForm::Plain => sql::CodeForm::Text,
+    };
+    let query = sql::Query {
+        dialect,
+        data_table,
+        crosswalk_table,
+        crosswalk_has_origin: false,
+        code_column: config.data.code_column.clone(),
+        state_column: config.data.state_column.clone(),
+        period_column: config.data.period_column.clone(),
+        codes,
+        variables: config
+            .requests
+            .iter()
+            .map(|r| match r {
+                Request::Count(c) => sql::Variable::Count(c.clone()),
+                Request::Ratio {
+                    name,
+                    numerator,
+                    denominator,
+                } => sql::Variable::Ratio {
+                    name: name.clone(),
+                    numerator: numerator.clone(),
+                    denominator: denominator.clone(),
+                },
+                Request::Mean { column, weight } => sql::Variable::Mean {
+                    column: column.clone(),
+                    weight: weight.clone(),
+                },
+            })
+            .collect(),
+        min_coverage: config.min_coverage,
+        columns: output_header(config, false).0,
+    };
+    let text = query.render();
+    crate::io::output::write_to(&config.output, |w| w.write_all(text.as_bytes()))?;
+    say(
+        global,
+        format!(
+            "regionkey apply: wrote the {} query; nothing was allocated here",
+            dialect.as_str()
+        ),
+    );
+    Ok(())
+}
+
 /// Runs the command: arguments, checked configuration, execution, summary.
 pub fn run(args: Args, global: Global) -> Result<()> {
     let config = Config::from_args(&args)?;
+    if let Some(dialect) = &args.emit_sql {
+        return emit_sql(&args, &config, dialect, global);
+    }
     let report = execute(&config)?;
     print_summary(global, &config, &report);
     Ok(())

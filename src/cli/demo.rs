@@ -527,6 +527,8 @@ pub fn run(args: Args, global: Global) -> Result<()> {
         skip_unweighted: false,
         output: arg(&harmonized),
         report: Some(apply_report.clone()),
+        emit_sql: None,
+        sql_tables: "data,crosswalk".into(),
         split_by: super::group::WeightBy::Area,
         population: None,
     };

@@ -18,3 +18,4 @@ pub mod normalize;
 pub mod overlay;
 pub mod projection;
 pub mod reference;
+pub mod sql;

@@ -1,0 +1,75 @@
+"""Errors raise `regionkey.RegionkeyError` with the command's message."""
+
+import pandas as pd
+import pytest
+
+import regionkey
+from conftest import run
+
+
+def command_message(*args) -> str:
+    done = run(*args, check=False)
+    assert done.returncode == 1, done.stderr
+    line = done.stderr.strip().splitlines()[-1]
+    assert line.startswith("regionkey: error: ")
+    return line[len("regionkey: error: "):]
+
+
+def test_a_missing_column_names_the_columns_there_are():
+    df = pd.DataFrame({"name": ["Cook"], "st": ["IL"]})
+    with pytest.raises(regionkey.RegionkeyError, match='no column "county"; the columns are: name, st'):
+        regionkey.match(df, name_column="county")
+
+
+def test_a_row_whose_year_is_not_a_year_is_named_like_the_command_names_it(tmp_path):
+    csv = tmp_path / "in.csv"
+    csv.write_text("county,year\nCook County IL,2015\nCook County IL,soon\n")
+    expected = command_message("match", csv, "--name-column", "county",
+                               "--vintage-column", "year", "--output", tmp_path / "o.csv")
+    df = pd.read_csv(csv, dtype=str)
+    with pytest.raises(regionkey.RegionkeyError) as e:
+        regionkey.match(df, name_column="county", vintage_column="year")
+    # The same words; the place is the DataFrame instead of the file.
+    assert str(e.value) == expected.replace(str(csv), "the DataFrame")
+
+
+def test_a_vintage_outside_the_reference_is_refused_as_by_the_command(tmp_path):
+    csv = tmp_path / "in.csv"
+    csv.write_text("county\nCook County IL\n")
+    expected = command_message("match", csv, "--name-column", "county", "--vintage", "1900")
+    with pytest.raises(regionkey.RegionkeyError) as e:
+        regionkey.match(pd.DataFrame({"county": ["Cook County IL"]}),
+                        name_column="county", vintage=1900)
+    assert str(e.value) == expected
+
+
+def test_a_decision_for_a_code_that_is_no_unit_names_its_file_line_and_column(tmp_path):
+    decisions = tmp_path / "decisions.csv"
+    decisions.write_text("name,state,chosen_code\nBaltimore,MD,99999\n")
+    csv = tmp_path / "in.csv"
+    csv.write_text("county,state\nBaltimore,MD\n")
+    expected = command_message("match", csv, "--name-column", "county", "--state-column",
+                               "state", "--decisions", decisions)
+    with pytest.raises(regionkey.RegionkeyError) as e:
+        regionkey.match(pd.read_csv(csv, dtype=str), name_column="county",
+                        state_column="state", decisions=decisions)
+    assert str(e.value) == expected
+    assert "line 2" in expected
+
+
+def test_apply_refuses_an_order_statistic_with_the_commands_explanation():
+    df = pd.DataFrame({"code": ["01001"], "median_income": [50000.0]})
+    cw = pd.DataFrame({"from_code": ["01001"], "to_code": ["01001"], "weight": [1.0],
+                       "target_share": [1.0], "basis": ["area"]})
+    with pytest.raises(regionkey.RegionkeyError, match="looks like an order statistic"):
+        regionkey.apply(df, cw, sum=["median_income"])
+
+
+def test_history_of_an_unknown_name_is_an_error():
+    with pytest.raises(regionkey.RegionkeyError, match="is not a county code or county name"):
+        regionkey.history("Atlantis")
+
+
+def test_something_that_is_not_a_dataframe_is_a_type_error():
+    with pytest.raises(TypeError, match="pandas or polars"):
+        regionkey.match([["Cook"]], name_column="county")
