@@ -509,21 +509,30 @@ mod tests {
         }
     }
 
+    /// `match_rows` on the test reference with the test settings.
+    fn run(
+        names: &[&str],
+        states: Option<&[&str]>,
+        years: Option<&[u16]>,
+        decisions: &Decisions,
+    ) -> Result<Matched> {
+        match_rows(
+            &reference(),
+            settings(),
+            names,
+            states,
+            years,
+            decisions,
+            &|_| {},
+        )
+    }
+
     #[test]
     fn each_distinct_name_state_and_year_is_resolved_once_and_every_row_is_mapped() {
         let names = ["Baker County", "Baker County", "Baker", "Baker County"];
         let states = ["AL", "AL", "AL", "AL"];
         let years = [2020, 2020, 2020, 2021];
-        let m = match_rows(
-            &reference(),
-            settings(),
-            &names,
-            Some(&states),
-            Some(&years),
-            &Decisions::default(),
-            &|_| {},
-        )
-        .unwrap();
+        let m = run(&names, Some(&states), Some(&years), &Decisions::default()).unwrap();
         assert_eq!(m.keys.len(), 3);
         assert_eq!(m.row_key, [0, 0, 1, 2]);
         assert_eq!(m.keys[0].rows, 2);
@@ -540,16 +549,7 @@ mod tests {
         let names = ["Baker"; 5];
         let states = ["AL"; 5];
         let years = [2001, 2002, 2003, 2010, 2030];
-        let m = match_rows(
-            &reference(),
-            settings(),
-            &names,
-            Some(&states),
-            Some(&years),
-            &Decisions::default(),
-            &|_| {},
-        )
-        .unwrap();
+        let m = run(&names, Some(&states), Some(&years), &Decisions::default()).unwrap();
         assert_eq!(m.review.len(), 1);
         assert_eq!(m.review[0].years.to_string(), "2001-2003;2010;2030");
         assert_eq!(m.review[0].rows, 5);
@@ -561,16 +561,7 @@ mod tests {
         let states = ["AL"; 4];
         let years = [2020, 2021, 2022, 2023];
         let decisions = Decisions::new(vec![decision("Baker", "2022-2023", "1002")]).unwrap();
-        let m = match_rows(
-            &reference(),
-            settings(),
-            &names,
-            Some(&states),
-            Some(&years),
-            &decisions,
-            &|_| {},
-        )
-        .unwrap();
+        let m = run(&names, Some(&states), Some(&years), &decisions).unwrap();
         let codes: Vec<Option<&str>> = m
             .keys
             .iter()
@@ -593,16 +584,7 @@ mod tests {
     #[test]
     fn several_chosen_codes_make_one_unit_of_several_in_code_order() {
         let decisions = Decisions::new(vec![decision("Baker", "", "01002+01001")]).unwrap();
-        let m = match_rows(
-            &reference(),
-            settings(),
-            &["Baker"],
-            Some(&["AL"][..]),
-            None,
-            &decisions,
-            &|_| {},
-        )
-        .unwrap();
+        let m = run(&["Baker"], Some(&["AL"][..]), None, &decisions).unwrap();
         let r = &m.keys[0].resolution;
         assert_eq!(r.code.as_deref(), Some("01001+01002"));
         assert_eq!(r.status, Status::Matched);
@@ -612,43 +594,23 @@ mod tests {
     #[test]
     fn with_one_vintage_a_decision_of_another_vintage_is_an_error_only_where_it_applies() {
         let d = Decisions::new(vec![decision("Cedar", "2023", "01003")]).unwrap();
-        let e = match_rows(
-            &reference(),
-            settings(),
-            &["Cedar"],
-            Some(&["AL"][..]),
-            None,
-            &d,
-            &|_| {},
-        )
-        .unwrap_err()
-        .to_string();
+        let e = run(&["Cedar"], Some(&["AL"][..]), None, &d)
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("d.csv: line 2") && e.contains("01003"), "{e}");
         // Tied to 2021, the same decision is simply not used in 2023.
         let d = Decisions::new(vec![decision("Cedar", "2021", "01003")]).unwrap();
-        let m = match_rows(
-            &reference(),
-            settings(),
-            &["Cedar"],
-            Some(&["AL"][..]),
-            None,
-            &d,
-            &|_| {},
-        )
-        .unwrap();
+        let m = run(&["Cedar"], Some(&["AL"][..]), None, &d).unwrap();
         assert!(m.keys[0].decision.is_none());
     }
 
     #[test]
     fn a_year_before_the_first_vintage_names_its_row() {
-        let e = match_rows(
-            &reference(),
-            settings(),
+        let e = run(
             &["Baker", "Baker"],
             None,
             Some(&[2000, 1990][..]),
             &Decisions::default(),
-            &|_| {},
         )
         .unwrap_err()
         .to_string();
