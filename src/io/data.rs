@@ -24,7 +24,7 @@ pub use crate::io::output::{csv_field, sha256_file};
 use crate::io::output::{fixed, NumberFormat};
 use crate::io::table::{
     check_text, decode_owned, detect_delimiter, find_column, is_parquet, read_table_bytes,
-    record_lines, ReadOptions,
+    record_lines, ReadOptions, Table,
 };
 use std::ops::Range;
 
@@ -55,10 +55,17 @@ pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
     let n = std::io::Read::read(&mut &file, &mut head)
         .map_err(|e| Error::io(path, "cannot read", e))?;
     if is_parquet(path, &head[..n]) {
+        crate::io::guard::parquet::check_file(path)?;
         let mut reader = ParquetReader::new(file);
-        let schema = reader.schema().map_err(|e| {
-            Error::input(Location::file(path), format!("cannot read as Parquet: {e}"))
-        })?;
+        let damaged = || {
+            Error::input(
+                Location::file(path),
+                "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+            )
+        };
+        let schema = crate::io::guard::catch(|| reader.schema())
+            .map_err(|_| damaged())?
+            .map_err(|_| damaged())?;
         return Ok(schema.iter_names().map(|n| n.to_string()).collect());
     }
     let line = first_line(path)?;
@@ -180,28 +187,8 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     let mut lines: Option<Arc<[u64]>> = None;
     let mut warnings = Vec::new();
     let df = if is_parquet(path, &head[..n]) {
-        let all: Vec<String> = text_columns
-            .iter()
-            .map(|s| s.to_string())
-            .chain(spec.value_columns.clone())
-            .collect();
-        let df = ParquetReader::new(file)
-            .with_columns(Some(all))
-            .finish()
-            .map_err(|e| polars_error(path, e))?;
-        let mut columns = Vec::new();
-        for name in &text_columns {
-            let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(
-                c.cast(&DataType::String)
-                    .map_err(|e| polars_error(path, e))?,
-            );
-        }
-        for name in &spec.value_columns {
-            let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(to_numbers(path, name, c, &|i| i as u64 + 2)?);
-        }
-        DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+        crate::io::guard::parquet::check_file(path)?;
+        read_parquet(spec, file, &text_columns)?
     } else {
         // One decoding for every table: the bytes checked, then UTF-8 or
         // Windows-1252, as io::table reads them.
@@ -219,38 +206,47 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
             lines = Some(record_lines(&text, sep, fields).into());
         }
         // Blank lines are not rows (as for every table regionkey reads).
-        let text = if blank { drop_blank_lines(&text) } else { text };
-        let line = |i: usize| line_of(&lines, i);
-        match read_csv(spec, sep, &DataType::Float64, text.as_bytes()) {
-            Ok(df) => df,
+        let cleaned: std::borrow::Cow<str> = if blank {
+            drop_blank_lines(&text).into()
+        } else {
+            text.as_str().into()
+        };
+        let fast = match read_csv(spec, sep, &DataType::Float64, cleaned.as_bytes()) {
+            Ok(df) => Some(df),
             // A value polars cannot read as a number: read the values as
             // text to find where, and say so.
-            Err(_) => {
-                let df = match read_csv(spec, sep, &DataType::String, text.as_bytes()) {
-                    Ok(df) => df,
-                    // Not readable at all: say where, in the table reader's
-                    // words (ragged row, bad quoting), with the line.
-                    Err(e) => {
-                        read_table_bytes(
-                            path,
-                            text.as_bytes(),
-                            ReadOptions {
-                                delimiter: Some(sep),
-                            },
-                        )?;
-                        return Err(polars_error(path, e));
+            Err(_) => match read_csv(spec, sep, &DataType::String, cleaned.as_bytes()) {
+                Ok(df) => {
+                    let line = |i: usize| line_of(&lines, i);
+                    let mut columns: Vec<Column> = text_columns
+                        .iter()
+                        .map(|n| df.column(n).cloned())
+                        .collect::<PolarsResult<_>>()
+                        .map_err(|e| polars_error(path, e))?;
+                    for name in &spec.value_columns {
+                        let c = df.column(name).map_err(|e| polars_error(path, e))?;
+                        columns.push(to_numbers(path, name, c, &line)?);
                     }
-                };
-                let mut columns: Vec<Column> = text_columns
-                    .iter()
-                    .map(|n| df.column(n).cloned())
-                    .collect::<PolarsResult<_>>()
-                    .map_err(|e| polars_error(path, e))?;
-                for name in &spec.value_columns {
-                    let c = df.column(name).map_err(|e| polars_error(path, e))?;
-                    columns.push(to_numbers(path, name, c, &line)?);
+                    Some(DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?)
                 }
-                DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+                Err(_) => None,
+            },
+        };
+        match fast {
+            Some(df) => df,
+            // Not readable by the fast path (a ragged row, quoting it reads
+            // otherwise, a column it does not find): read by the one table
+            // reader, whose errors name the line and column in our words.
+            None => {
+                let table = read_table_bytes(
+                    path,
+                    text.as_bytes(),
+                    ReadOptions {
+                        delimiter: Some(sep),
+                    },
+                )?;
+                lines = Some(table.lines.clone().into());
+                from_table(spec, &table, &text_columns)?
             }
         }
     };
@@ -286,6 +282,95 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         lines,
         warnings,
     })
+}
+
+/// Reads the columns `spec` names from a Parquet file already checked by
+/// [`crate::io::guard::parquet`]; a panic of the decoder is caught.
+fn read_parquet(
+    spec: &DataSpec,
+    file: std::fs::File,
+    text_columns: &[&String],
+) -> Result<DataFrame> {
+    let path = &spec.path;
+    let damaged = || {
+        Error::input(
+            Location::file(path),
+            "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+        )
+    };
+    let mut reader = ParquetReader::new(file);
+    let names: Vec<String> = crate::io::guard::catch(|| reader.schema())
+        .map_err(|_| damaged())?
+        .map_err(|_| damaged())?
+        .iter_names()
+        .map(|n| n.to_string())
+        .collect();
+    // Each column as the file names it (the one column rule).
+    let find = |name: &String| find_column(path, &names, name).map(|i| names[i].clone());
+    let file_text: Vec<String> = text_columns.iter().map(|n| find(n)).collect::<Result<_>>()?;
+    let file_values: Vec<String> = spec.value_columns.iter().map(find).collect::<Result<_>>()?;
+    let all: Vec<String> = file_text.iter().chain(&file_values).cloned().collect();
+    let df = crate::io::guard::catch(|| reader.with_columns(Some(all)).finish())
+        .map_err(|_| damaged())?
+        .map_err(|_| damaged())?;
+    let mut columns = Vec::new();
+    for (name, file_name) in text_columns.iter().zip(&file_text) {
+        let c = df.column(file_name).map_err(|e| polars_error(path, e))?;
+        let c = c.cast(&DataType::String).map_err(|_| {
+            Error::input(
+                Location::file(path).in_column(file_name.as_str()),
+                "cannot read the column as text",
+            )
+        })?;
+        columns.push(c.with_name(name.as_str().into()));
+    }
+    for (name, file_name) in spec.value_columns.iter().zip(&file_values) {
+        let c = df.column(file_name).map_err(|e| polars_error(path, e))?;
+        let c = to_numbers(path, file_name, c, &|i| i as u64 + 2)?;
+        columns.push(c.with_name(name.as_str().into()));
+    }
+    DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))
+}
+
+/// The columns `spec` names, taken from a table the one table reader read:
+/// fields empty or equal to a missing marker are missing; a value that is
+/// not a number is an error naming its line and column.
+fn from_table(spec: &DataSpec, table: &Table, text_columns: &[&String]) -> Result<DataFrame> {
+    let missing = |v: &str| v.is_empty() || spec.missing.iter().any(|m| m == v);
+    let mut columns = Vec::new();
+    for name in text_columns {
+        let i = table.column(name)?;
+        let ca: StringChunked = table
+            .records
+            .iter()
+            .map(|r| Some(&r[i]).filter(|v| !missing(v)))
+            .collect();
+        columns.push(ca.with_name(name.as_str().into()).into_column());
+    }
+    for name in &spec.value_columns {
+        let i = table.column(name)?;
+        let mut out: Vec<Option<f64>> = Vec::with_capacity(table.len());
+        for (row, r) in table.records.iter().enumerate() {
+            let v = &r[i];
+            if missing(v) || v.trim().is_empty() {
+                out.push(None);
+                continue;
+            }
+            match v.trim().parse::<f64>() {
+                Ok(x) => out.push(Some(x)),
+                Err(_) => {
+                    return Err(Error::input(
+                        table.location(row, i),
+                        format!("{:?} is not a number; leave the field empty if the value is missing, or name the marker with --missing", v.trim()),
+                    ))
+                }
+            }
+        }
+        columns.push(
+            Float64Chunked::from_iter_options(name.as_str().into(), out.into_iter()).into_column(),
+        );
+    }
+    DataFrame::new_infer_height(columns).map_err(|e| polars_error(&spec.path, e))
 }
 
 /// `text` without its blank lines (line breaks inside quoted fields kept).
