@@ -651,6 +651,7 @@ fn damaged_data_tables_for_apply_are_read_or_refused_with_a_located_error() {
                 period_column: Some("year".into()),
                 value_columns: vec!["count".into()],
                 missing: vec!["NA".into()],
+                method_column: None,
             };
             match read(&spec) {
                 Ok(_) => {
@@ -857,6 +858,7 @@ fn damaged_parquet_tables_are_read_or_refused_with_a_located_error() {
                     period_column: seed.period.map(String::from),
                     value_columns: seed.values.iter().map(|v| v.to_string()).collect(),
                     missing: vec!["NA".into()],
+                    method_column: None,
                 };
                 let read = std::panic::catch_unwind(|| read_data(&spec));
                 prop_assert!(read.is_ok(), "apply's data reader panicked on {:?}", damages);

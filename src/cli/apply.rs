@@ -34,7 +34,7 @@ use crate::error::{Error, Location, Result};
 use crate::io::builtin::us_counties;
 use crate::io::composites as composites_io;
 use crate::io::crosswalk_file;
-use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout};
+use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout, DECIDED};
 use crate::io::output::{
     sidecar_path, write_csv_record, NumberFormat, Sidecar, SidecarInput, Staged, Target, Written,
 };
@@ -467,8 +467,16 @@ impl Config {
             period_column: args.period_column.clone(),
             value_columns,
             missing,
+            method_column: None,
         };
-        let data = data::resolve_columns(&data)?;
+        let mut data = data::resolve_columns(&data)?;
+        // The method column of `regionkey match` (prefixed when the input
+        // had one of that name), so rows decided by a person are named so.
+        let names = data::column_names(&data)?;
+        data.method_column = ["rk_match_method", "match_method"]
+            .iter()
+            .find(|m| names.iter().any(|n| n == *m))
+            .map(|m| m.to_string());
         let output = Target::parse(&args.output);
         output.check_writable()?;
         // With --emit-sql the output is the query, whatever its extension.
@@ -683,6 +691,11 @@ pub struct Report {
     pub periods: usize,
     /// Codes of the data carried from earlier vintages.
     pub carried: usize,
+    /// Rows whose code came from a person's decision (`match_method`
+    /// `decision`), and their distinct codes.
+    pub decided: (u64, usize),
+    /// Rows a decision matched to no unit (left out as decided).
+    pub decided_none: u64,
     /// (code, period) cells with more than one row.
     pub duplicates: u64,
     /// Every reported row, sorted.
@@ -808,14 +821,28 @@ fn check_column_contents(
 pub fn execute(config: &Config) -> Result<Report> {
     let table = data::read(&config.data)?;
     let indexed = table.index();
+    let decided = table.decided(&indexed);
     let mut findings: Vec<Finding> = Vec::new();
-    if indexed.missing_code.0 > 0 {
+    if decided.missing_otherwise.0 > 0 {
         findings.push(finding(
             "missing-code",
             String::new(),
-            indexed.missing_code.0,
-            indexed.missing_code.1,
+            decided.missing_otherwise.0,
+            decided.missing_otherwise.1,
             format!("rows with an empty {}; left out", config.data.code_column),
+        ));
+    }
+    if decided.none.0 > 0 {
+        findings.push(finding(
+            "decided-none",
+            String::new(),
+            decided.none.0,
+            decided.none.1,
+            format!(
+                "rows a person's decision matched to no unit (empty {}, {} {DECIDED}); left out as decided",
+                config.data.code_column,
+                config.data.method_column.as_deref().unwrap_or("match_method")
+            ),
         ));
     }
     if indexed.missing_period.0 > 0 {
@@ -1070,6 +1097,36 @@ pub fn execute(config: &Config) -> Result<Report> {
                 "not a source code of the crosswalk; rows left out".into(),
             ));
         }
+    }
+    // Codes taken from a person's decision, once per code as read (after
+    // the lines above, which a code's other findings do not hide).
+    let mut decided_codes: BTreeMap<String, (u64, u64)> = BTreeMap::new();
+    for ((raw, n), &(rows, first)) in indexed
+        .codes
+        .iter()
+        .zip(&normalized)
+        .zip(&decided.by_code)
+    {
+        if rows == 0 {
+            continue;
+        }
+        let code = n.clone().unwrap_or_else(|| raw.code.clone());
+        let e = decided_codes.entry(code).or_insert((0, first));
+        e.0 += rows;
+        e.1 = e.1.min(first);
+    }
+    let decided_rows: u64 = decided_codes.values().map(|(rows, _)| rows).sum();
+    for (code, &(rows, first)) in &decided_codes {
+        findings.push(finding(
+            "decided",
+            code.clone(),
+            rows,
+            first,
+            format!(
+                "the code came from a person's decision ({} {DECIDED}); allocated like any other code",
+                config.data.method_column.as_deref().unwrap_or("match_method")
+            ),
+        ));
     }
     let cells = indexed.periods.len() as u64 * (plan.sources.len() + pooled.len()) as u64;
     if cells >= u32::MAX as u64 {
@@ -1387,6 +1444,8 @@ pub fn execute(config: &Config) -> Result<Report> {
         targets: plan.targets.len(),
         periods: if with_period { periods } else { 0 },
         carried,
+        decided: (decided_rows, decided_codes.len()),
+        decided_none: decided.none.0,
         duplicates,
         findings,
         counts,
@@ -1727,6 +1786,9 @@ fn sidecar_record(config: &Config, s: &Report) -> Result<Sidecar> {
             "targets": s.targets,
             "periods": s.periods,
             "codes_carried": s.carried,
+            "rows_with_decided_codes": s.decided.0,
+            "codes_decided": s.decided.1,
+            "rows_decided_none": s.decided_none,
             "duplicate_cells": s.duplicates,
             "reported": reported,
         }),

@@ -45,6 +45,10 @@ pub struct DataSpec {
     pub value_columns: Vec<String>,
     /// Texts that mean "no value" besides an empty field.
     pub missing: Vec<String>,
+    /// The column where `regionkey match` wrote how each row's code was
+    /// found (`match_method`), if the table has one: rows whose code came
+    /// from a person's decision are then counted as such.
+    pub method_column: Option<String>,
 }
 
 /// Column names of a data file, read without reading the rows.
@@ -127,6 +131,7 @@ pub fn resolve_columns(spec: &DataSpec) -> Result<DataSpec> {
         state_column: spec.state_column.as_ref().map(find).transpose()?,
         period_column: spec.period_column.as_ref().map(find).transpose()?,
         value_columns: spec.value_columns.iter().map(find).collect::<Result<_>>()?,
+        method_column: spec.method_column.as_ref().map(find).transpose()?,
         ..spec.clone()
     })
 }
@@ -140,6 +145,7 @@ pub struct DataTable {
     codes: StringChunked,
     states: Option<StringChunked>,
     periods: Option<StringChunked>,
+    methods: Option<StringChunked>,
     values: Vec<Float64Chunked>,
     /// The value columns, in the order of [`DataSpec::value_columns`].
     pub value_columns: Vec<String>,
@@ -180,6 +186,7 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         Some(&spec.code_column),
         spec.state_column.as_ref(),
         spec.period_column.as_ref(),
+        spec.method_column.as_ref(),
     ]
     .into_iter()
     .flatten()
@@ -277,6 +284,7 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         codes: text(&spec.code_column)?,
         states: spec.state_column.as_ref().map(text).transpose()?,
         periods: spec.period_column.as_ref().map(text).transpose()?,
+        methods: spec.method_column.as_ref().map(text).transpose()?,
         values,
         value_columns: spec.value_columns.clone(),
         lines,
@@ -421,6 +429,7 @@ fn read_csv(
         Some(&spec.code_column),
         spec.state_column.as_ref(),
         spec.period_column.as_ref(),
+        spec.method_column.as_ref(),
     ]
     .into_iter()
     .flatten()
@@ -537,6 +546,23 @@ pub struct Indexed {
 
 const NONE: u32 = u32::MAX;
 
+/// Rows whose code came from a person's decision (`match_method` is
+/// `decision`), by what the decision gave.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Decided {
+    /// Rows a decision matched to no unit (an empty code), and the first
+    /// one's line.
+    pub none: (u64, u64),
+    /// Per distinct code of [`Indexed::codes`]: rows and first line.
+    pub by_code: Vec<(u64, u64)>,
+    /// Rows with no code that no decision left empty, and the first one's
+    /// line (all of [`Indexed::missing_code`] without a method column).
+    pub missing_otherwise: (u64, u64),
+}
+
+/// The method `regionkey match` writes for a code taken from a decision.
+pub const DECIDED: &str = "decision";
+
 impl DataTable {
     /// Numbers each row's code and period (one pass).
     pub fn index(&self) -> Indexed {
@@ -596,6 +622,35 @@ impl DataTable {
             row_code.push(id);
         }
         (codes, code_rows, row_code, missing_code)
+    }
+
+    /// Rows whose code came from a decision, when the table has a method
+    /// column (see [`DataSpec::method_column`]).
+    pub fn decided(&self, indexed: &Indexed) -> Decided {
+        let mut out = Decided {
+            none: (0, 0),
+            by_code: vec![(0, 0); indexed.codes.len()],
+            missing_otherwise: indexed.missing_code,
+        };
+        let Some(methods) = &self.methods else {
+            return out;
+        };
+        out.missing_otherwise = (0, 0);
+        for (i, m) in methods.iter().enumerate() {
+            let decided = m.map(str::trim) == Some(DECIDED);
+            let slot = match (indexed.row_code[i], decided) {
+                (NONE, true) => &mut out.none,
+                (NONE, false) => &mut out.missing_otherwise,
+                (id, true) => &mut out.by_code[id as usize],
+                (_, false) => continue,
+            };
+            let line = self.line(i);
+            slot.0 += 1;
+            if slot.1 == 0 {
+                slot.1 = line;
+            }
+        }
+        out
     }
 
     /// Distinct periods (sorted), each row's period id, and the rows with
