@@ -964,19 +964,38 @@ Autauga,2020,3,01001,matched,exact
     let kind = |k: &str| -> Vec<&Row> { items.iter().filter(|r| r["kind"] == k).collect() };
     let decided: Vec<(&str, &str, &str)> = kind("decided")
         .iter()
-        .map(|r| (r["code"].as_str(), r["rows"].as_str(), r["first_line"].as_str()))
+        .map(|r| {
+            (
+                r["code"].as_str(),
+                r["rows"].as_str(),
+                r["first_line"].as_str(),
+            )
+        })
         .collect();
     assert_eq!(
         decided,
-        vec![("24005", "2", "2"), ("46113", "1", "5"), ("51760", "1", "4")]
+        vec![
+            ("24005", "2", "2"),
+            ("46113", "1", "5"),
+            ("51760", "1", "4")
+        ]
     );
     let none = kind("decided-none");
     assert_eq!(none.len(), 1);
-    assert_eq!((none[0]["rows"].as_str(), none[0]["first_line"].as_str()), ("2", "6"));
+    assert_eq!(
+        (none[0]["rows"].as_str(), none[0]["first_line"].as_str()),
+        ("2", "6")
+    );
     assert!(none[0]["detail"].contains("decision"), "{:?}", none[0]);
     let missing = kind("missing-code");
     assert_eq!(missing.len(), 1);
-    assert_eq!((missing[0]["rows"].as_str(), missing[0]["first_line"].as_str()), ("1", "8"));
+    assert_eq!(
+        (
+            missing[0]["rows"].as_str(),
+            missing[0]["first_line"].as_str()
+        ),
+        ("1", "8")
+    );
     // A decided code keeps its other lines: 46113 is still reported carried.
     assert!(kind("carried").iter().any(|r| r["code"] == "46113"));
     // The sidecar counts them too.

@@ -629,14 +629,18 @@ fn apply_refuses_the_damaged_parquet_file_naming_row_group_and_column() {
     let dir = tempfile::tempdir().unwrap();
     let cw = dir.path().join("cw.csv");
     std::fs::write(&cw, "from_code,to_code,weight\n09001,09190,1\n").unwrap();
-    rk().args(["apply", "fixtures/damaged/parquet-decoder-abort.parquet", "--crosswalk"])
-        .arg(&cw)
-        .args(["--code-column", "from_code", "--sum", "weight", "-o"])
-        .arg(dir.path().join("out.csv"))
-        .env("RUST_BACKTRACE", "0")
-        .assert()
-        .code(1)
-        .stderr(predicate::str::contains(
-            "parquet-decoder-abort.parquet: row group 1: column \"basis\"",
-        ));
+    rk().args([
+        "apply",
+        "fixtures/damaged/parquet-decoder-abort.parquet",
+        "--crosswalk",
+    ])
+    .arg(&cw)
+    .args(["--code-column", "from_code", "--sum", "weight", "-o"])
+    .arg(dir.path().join("out.csv"))
+    .env("RUST_BACKTRACE", "0")
+    .assert()
+    .code(1)
+    .stderr(predicate::str::contains(
+        "parquet-decoder-abort.parquet: row group 1: column \"basis\"",
+    ));
 }

@@ -819,61 +819,68 @@ fn damaged_parquet_tables_are_read_or_refused_with_a_located_error() {
         let table_tally = Tally::new("Parquet table");
         let data_tally = Tally::new("Parquet data table (apply)");
         TestRunner::new(config())
-            .run(&proptest::collection::vec(parquet_damage(), 1..4), |damages| {
-                let mut b = seed.bytes.clone();
-                for d in &damages {
-                    apply_parquet(&mut b, d);
-                }
-                if let Some(p) = std::env::var_os("REGIONKEY_FUZZ_LAST") {
-                    // Kept for reproducing a case that aborts the process.
-                    std::fs::write(p, &b).unwrap();
-                }
-                // The table reader, on the bytes.
-                let read = std::panic::catch_unwind(|| {
-                    read_table_bytes(&case, &b, ReadOptions::default())
-                });
-                prop_assert!(read.is_ok(), "the Parquet reader panicked on {:?}", damages);
-                match read.unwrap() {
-                    Ok(t) => {
-                        for r in &t.records {
-                            prop_assert_eq!(r.len(), t.headers.len());
+            .run(
+                &proptest::collection::vec(parquet_damage(), 1..4),
+                |damages| {
+                    let mut b = seed.bytes.clone();
+                    for d in &damages {
+                        apply_parquet(&mut b, d);
+                    }
+                    if let Some(p) = std::env::var_os("REGIONKEY_FUZZ_LAST") {
+                        // Kept for reproducing a case that aborts the process.
+                        std::fs::write(p, &b).unwrap();
+                    }
+                    // The table reader, on the bytes.
+                    let read = std::panic::catch_unwind(|| {
+                        read_table_bytes(&case, &b, ReadOptions::default())
+                    });
+                    prop_assert!(read.is_ok(), "the Parquet reader panicked on {:?}", damages);
+                    match read.unwrap() {
+                        Ok(t) => {
+                            for r in &t.records {
+                                prop_assert_eq!(r.len(), t.headers.len());
+                            }
+                            table_tally.ok.fetch_add(1, Ordering::Relaxed);
                         }
-                        table_tally.ok.fetch_add(1, Ordering::Relaxed);
-                    }
-                    Err(e) => {
-                        check_error(&e, "case.parquet")?;
-                        if e.to_string().contains("its decoder stopped") {
-                            table_tally.caught.fetch_add(1, Ordering::Relaxed);
+                        Err(e) => {
+                            check_error(&e, "case.parquet")?;
+                            if e.to_string().contains("its decoder stopped") {
+                                table_tally.caught.fetch_add(1, Ordering::Relaxed);
+                            }
+                            table_tally.refused.fetch_add(1, Ordering::Relaxed);
                         }
-                        table_tally.refused.fetch_add(1, Ordering::Relaxed);
                     }
-                }
-                // Apply's data reader, on the file.
-                std::fs::write(&case, &b).unwrap();
-                let spec = DataSpec {
-                    path: case.clone(),
-                    separator: None,
-                    code_column: seed.code.into(),
-                    state_column: None,
-                    period_column: seed.period.map(String::from),
-                    value_columns: seed.values.iter().map(|v| v.to_string()).collect(),
-                    missing: vec!["NA".into()],
-                    method_column: None,
-                };
-                let read = std::panic::catch_unwind(|| read_data(&spec));
-                prop_assert!(read.is_ok(), "apply's data reader panicked on {:?}", damages);
-                match read.unwrap() {
-                    Ok(t) => {
-                        let _ = t.index();
-                        data_tally.ok.fetch_add(1, Ordering::Relaxed);
+                    // Apply's data reader, on the file.
+                    std::fs::write(&case, &b).unwrap();
+                    let spec = DataSpec {
+                        path: case.clone(),
+                        separator: None,
+                        code_column: seed.code.into(),
+                        state_column: None,
+                        period_column: seed.period.map(String::from),
+                        value_columns: seed.values.iter().map(|v| v.to_string()).collect(),
+                        missing: vec!["NA".into()],
+                        method_column: None,
+                    };
+                    let read = std::panic::catch_unwind(|| read_data(&spec));
+                    prop_assert!(
+                        read.is_ok(),
+                        "apply's data reader panicked on {:?}",
+                        damages
+                    );
+                    match read.unwrap() {
+                        Ok(t) => {
+                            let _ = t.index();
+                            data_tally.ok.fetch_add(1, Ordering::Relaxed);
+                        }
+                        Err(e) => {
+                            check_error(&e, "case.parquet")?;
+                            data_tally.refused.fetch_add(1, Ordering::Relaxed);
+                        }
                     }
-                    Err(e) => {
-                        check_error(&e, "case.parquet")?;
-                        data_tally.refused.fetch_add(1, Ordering::Relaxed);
-                    }
-                }
-                Ok(())
-            })
+                    Ok(())
+                },
+            )
             .unwrap();
         eprint!("{}: ", seed.name);
         table_tally.report();

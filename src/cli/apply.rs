@@ -25,11 +25,11 @@ use std::path::PathBuf;
 
 use super::{say, warn, Global};
 use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
+use crate::core::carrying::plan_to_vintage;
 use crate::core::chain::{check, ChainError};
 use crate::core::composite;
 use crate::core::crosswalk::Crosswalk;
 use crate::core::fips::{CodeForm, FipsError};
-use crate::core::carrying::plan_to_vintage;
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::us_counties;
 use crate::io::composites as composites_io;
@@ -978,9 +978,11 @@ pub fn execute(config: &Config) -> Result<Report> {
                     listed.join("; ")
                 )));
             }
-            findings.extend(c.notes.into_iter().map(|n| {
-                finding(n.kind.as_str(), n.code, n.rows, n.first_line, n.detail)
-            }));
+            findings.extend(
+                c.notes
+                    .into_iter()
+                    .map(|n| finding(n.kind.as_str(), n.code, n.rows, n.first_line, n.detail)),
+            );
             let label = match &config.crosswalk {
                 Some((p, _)) => format!(
                     "built-in change history to {year}, {}, {}",
@@ -989,7 +991,13 @@ pub fn execute(config: &Config) -> Result<Report> {
                 ),
                 None => format!("built-in change history to {year}, {SHIPPED_CROSSWALK}"),
             };
-            (c.crosswalk, v.plan, v.carried_codes, Some(v.target_names), label)
+            (
+                c.crosswalk,
+                v.plan,
+                v.carried_codes,
+                Some(v.target_names),
+                label,
+            )
         }
         None => {
             let (path, cw) = config
@@ -1101,12 +1109,7 @@ pub fn execute(config: &Config) -> Result<Report> {
     // Codes taken from a person's decision, once per code as read (after
     // the lines above, which a code's other findings do not hide).
     let mut decided_codes: BTreeMap<String, (u64, u64)> = BTreeMap::new();
-    for ((raw, n), &(rows, first)) in indexed
-        .codes
-        .iter()
-        .zip(&normalized)
-        .zip(&decided.by_code)
-    {
+    for ((raw, n), &(rows, first)) in indexed.codes.iter().zip(&normalized).zip(&decided.by_code) {
         if rows == 0 {
             continue;
         }

@@ -480,7 +480,12 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     let matched = dir.join("matched.csv");
     let review = dir.join("review.csv");
     let first = super::match_names::configure(
-        &match_args(&reports, None, &dir.join("matched-first-pass.csv"), &first_review),
+        &match_args(
+            &reports,
+            None,
+            &dir.join("matched-first-pass.csv"),
+            &first_review,
+        ),
         Global { quiet: true },
     )?;
     super::match_names::execute(&first)?;
@@ -653,8 +658,15 @@ fn match_summary(report: &super::match_names::Report) -> Vec<String> {
         .map(|(m, c)| format!("{} {c}", m.as_str()))
         .collect();
     let mut lines = vec![
-        format!("regionkey match: {} rows, {} distinct names", t.rows, t.names),
-        format!("  matched   {} ({})", n(Status::Matched), methods.join(", ")),
+        format!(
+            "regionkey match: {} rows, {} distinct names",
+            t.rows, t.names
+        ),
+        format!(
+            "  matched   {} ({})",
+            n(Status::Matched),
+            methods.join(", ")
+        ),
         format!("  review    {}", n(Status::Review)),
         format!("  unmatched {}", n(Status::Unmatched)),
     ];

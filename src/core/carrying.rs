@@ -173,7 +173,10 @@ pub fn carry_codes(
                 target_share: Some(1.0),
                 basis: Basis::History,
             }),
-            Carried::To { code: to, note: what } => {
+            Carried::To {
+                code: to,
+                note: what,
+            } => {
                 out.carried.insert(code.clone());
                 let rows = shipped_rows(code);
                 if !rows.is_empty() {
@@ -327,7 +330,14 @@ pub fn plan_to_vintage(
         cw.sort();
         cw
     });
-    let carrying = carry_codes(codes, year, reference, user.as_ref(), shipped, shipped_label);
+    let carrying = carry_codes(
+        codes,
+        year,
+        reference,
+        user.as_ref(),
+        shipped,
+        shipped_label,
+    );
     let mut targets: Vec<String> = if all_units {
         reference.units_in(year).map(|u| u.code.clone()).collect()
     } else {
@@ -441,12 +451,26 @@ mod tests {
 
     #[test]
     fn a_renamed_county_is_carried_whole_and_a_valid_one_keeps_its_code() {
-        let c = carry_codes(&codes(&["01001", "46113"]), 2023, &reference(), None, None, "shipped");
+        let c = carry_codes(
+            &codes(&["01001", "46113"]),
+            2023,
+            &reference(),
+            None,
+            None,
+            "shipped",
+        );
         let rows: Vec<(&str, Option<&str>, f64, Option<f64>)> = c
             .crosswalk
             .rows
             .iter()
-            .map(|r| (r.from_code.as_str(), r.to_code.as_deref(), r.weight, r.target_share))
+            .map(|r| {
+                (
+                    r.from_code.as_str(),
+                    r.to_code.as_deref(),
+                    r.weight,
+                    r.target_share,
+                )
+            })
             .collect();
         assert_eq!(
             rows,
@@ -463,7 +487,14 @@ mod tests {
 
     #[test]
     fn an_absorbed_unit_adds_its_counts_but_not_a_target_share() {
-        let c = carry_codes(&codes(&["51515"]), 2023, &reference(), None, None, "shipped");
+        let c = carry_codes(
+            &codes(&["51515"]),
+            2023,
+            &reference(),
+            None,
+            None,
+            "shipped",
+        );
         assert_eq!(c.crosswalk.rows.len(), 1);
         assert_eq!(c.crosswalk.rows[0].to_code.as_deref(), Some("51019"));
         // Bedford city is part of Bedford County's land, of unknown share.
@@ -472,10 +503,21 @@ mod tests {
 
     #[test]
     fn a_divided_unit_without_weights_is_listed_and_gets_no_rows() {
-        let c = carry_codes(&codes(&["02261"]), 2023, &reference(), None, None, "shipped");
+        let c = carry_codes(
+            &codes(&["02261"]),
+            2023,
+            &reference(),
+            None,
+            None,
+            "shipped",
+        );
         assert!(c.crosswalk.rows.is_empty());
         assert_eq!(c.unweighted.len(), 1);
-        assert!(c.unweighted[0].1.contains("02063, 02066"), "{:?}", c.unweighted);
+        assert!(
+            c.unweighted[0].1.contains("02063, 02066"),
+            "{:?}",
+            c.unweighted
+        );
         assert_eq!(c.notes[0].kind, CarryKind::DividedWithoutWeights);
     }
 
@@ -483,30 +525,64 @@ mod tests {
     fn a_divided_unit_takes_the_shipped_weights_and_their_other_sources_join() {
         // Weights invented for the test; 02999 stands for another source of
         // Chugach in the shipped table, absent from the data.
-        let mut shipped = Crosswalk::default();
-        shipped.rows = vec![
-            row("02261", "02063", 0.3, 0.9),
-            row("02261", "02066", 0.7, 1.0),
-            row("02999", "02063", 1.0, 0.1),
-        ];
+        let mut shipped = Crosswalk {
+            rows: vec![
+                row("02261", "02063", 0.3, 0.9),
+                row("02261", "02066", 0.7, 1.0),
+                row("02999", "02063", 1.0, 0.1),
+            ],
+        };
         shipped.sort();
-        let c = carry_codes(&codes(&["02261"]), 2023, &reference(), None, Some(&shipped), "shipped");
+        let c = carry_codes(
+            &codes(&["02261"]),
+            2023,
+            &reference(),
+            None,
+            Some(&shipped),
+            "shipped",
+        );
         assert!(c.unweighted.is_empty());
         assert_eq!(c.notes[0].kind, CarryKind::Divided);
-        let from: Vec<&str> = c.crosswalk.rows.iter().map(|r| r.from_code.as_str()).collect();
+        let from: Vec<&str> = c
+            .crosswalk
+            .rows
+            .iter()
+            .map(|r| r.from_code.as_str())
+            .collect();
         assert_eq!(from, vec!["02261", "02261", "02999"]);
-        assert!(c.carried.contains("02999"), "a source without data joins as carried");
+        assert!(
+            c.carried.contains("02999"),
+            "a source without data joins as carried"
+        );
         // The shipped weights reach 2023 only.
-        let c = carry_codes(&codes(&["02261"]), 2020, &reference(), None, Some(&shipped), "shipped");
+        let c = carry_codes(
+            &codes(&["02261"]),
+            2020,
+            &reference(),
+            None,
+            Some(&shipped),
+            "shipped",
+        );
         assert_eq!(c.unweighted.len(), 1);
     }
 
     #[test]
     fn the_users_rows_come_before_the_history() {
-        let mut user = Crosswalk::default();
-        user.rows = vec![row("46113", "46102", 1.0, 1.0), row("51515", "51019", 1.0, 0.05)];
+        let mut user = Crosswalk {
+            rows: vec![
+                row("46113", "46102", 1.0, 1.0),
+                row("51515", "51019", 1.0, 0.05),
+            ],
+        };
         user.sort();
-        let c = carry_codes(&codes(&["51515"]), 2023, &reference(), Some(&user), None, "shipped");
+        let c = carry_codes(
+            &codes(&["51515"]),
+            2023,
+            &reference(),
+            Some(&user),
+            None,
+            "shipped",
+        );
         assert_eq!(c.notes[0].kind, CarryKind::FromCrosswalk);
         assert_eq!(c.crosswalk.rows.len(), 1);
         assert_eq!(c.crosswalk.rows[0].target_share, Some(0.05));
@@ -516,19 +592,27 @@ mod tests {
 
     #[test]
     fn an_unknown_code_is_noted_and_left_out() {
-        let c = carry_codes(&codes(&["99999"]), 2023, &reference(), None, None, "shipped");
+        let c = carry_codes(
+            &codes(&["99999"]),
+            2023,
+            &reference(),
+            None,
+            None,
+            "shipped",
+        );
         assert!(c.crosswalk.rows.is_empty());
         assert_eq!(c.notes[0].kind, CarryKind::UnknownCode);
     }
 
     #[test]
     fn the_plan_to_a_vintage_counts_only_data_codes_as_carried() {
-        let mut shipped = Crosswalk::default();
-        shipped.rows = vec![
-            row("02261", "02063", 0.3, 0.9),
-            row("02261", "02066", 0.7, 1.0),
-            row("02999", "02063", 1.0, 0.1),
-        ];
+        let mut shipped = Crosswalk {
+            rows: vec![
+                row("02261", "02063", 0.3, 0.9),
+                row("02261", "02066", 0.7, 1.0),
+                row("02999", "02063", 1.0, 0.1),
+            ],
+        };
         shipped.sort();
         let v = plan_to_vintage(
             &codes(&["01001", "02261", "46113"]),
@@ -551,7 +635,15 @@ mod tests {
                 "Oglala Lakota County"
             ]
         );
-        let all = plan_to_vintage(&codes(&["01001"]), 2023, &reference(), None, None, "s", true);
+        let all = plan_to_vintage(
+            &codes(&["01001"]),
+            2023,
+            &reference(),
+            None,
+            None,
+            "s",
+            true,
+        );
         assert_eq!(all.plan.targets.len(), 5, "every unit valid in 2023");
     }
 }

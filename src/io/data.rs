@@ -315,7 +315,10 @@ fn read_parquet(
         .collect();
     // Each column as the file names it (the one column rule).
     let find = |name: &String| find_column(path, &names, name).map(|i| names[i].clone());
-    let file_text: Vec<String> = text_columns.iter().map(|n| find(n)).collect::<Result<_>>()?;
+    let file_text: Vec<String> = text_columns
+        .iter()
+        .map(|n| find(n))
+        .collect::<Result<_>>()?;
     let file_values: Vec<String> = spec.value_columns.iter().map(find).collect::<Result<_>>()?;
     let all: Vec<String> = file_text.iter().chain(&file_values).cloned().collect();
     let df = crate::io::guard::catch(|| reader.with_columns(Some(all)).finish())

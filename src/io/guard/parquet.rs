@@ -274,7 +274,8 @@ impl<'a> Compact<'a> {
             let ty = h & 0x0f;
             let delta = h >> 4;
             let id = if delta == 0 {
-                i16::try_from(self.zigzag()?).map_err(|_| Fault::Bad("a field number out of range"))?
+                i16::try_from(self.zigzag()?)
+                    .map_err(|_| Fault::Bad("a field number out of range"))?
             } else {
                 last.checked_add(i16::from(delta))
                     .ok_or(Fault::Bad("a field number out of range"))?
@@ -326,7 +327,11 @@ impl<'a> Compact<'a> {
     }
 
     /// Reads a list of structs, calling `each` on every element.
-    fn list_of_structs(&mut self, ty: u8, mut each: impl FnMut(&mut Self) -> Parse<()>) -> Parse<()> {
+    fn list_of_structs(
+        &mut self,
+        ty: u8,
+        mut each: impl FnMut(&mut Self) -> Parse<()>,
+    ) -> Parse<()> {
         if ty != T_LIST && ty != T_SET {
             return Err(Fault::Bad("a field of the wrong type"));
         }
@@ -558,7 +563,9 @@ struct Leaf {
 fn damaged(path: &Path, what: impl std::fmt::Display) -> Error {
     Error::input(
         Location::file(path),
-        format!("cannot read as Parquet: {what}; the file is damaged or was not written completely"),
+        format!(
+            "cannot read as Parquet: {what}; the file is damaged or was not written completely"
+        ),
     )
 }
 
@@ -582,7 +589,10 @@ fn check(path: &Path, src: &mut dyn Source) -> Result<()> {
     let len = src.len();
     let io = |e| Error::io(path, "cannot read", e);
     if len < 12 {
-        return Err(damaged(path, format!("the file is {len} bytes, shorter than any Parquet file")));
+        return Err(damaged(
+            path,
+            format!("the file is {len} bytes, shorter than any Parquet file"),
+        ));
     }
     let head = src.read_at(0, 4).map_err(io)?;
     let tail = src.read_at(len - 8, 8).map_err(io)?;
@@ -593,7 +603,10 @@ fn check(path: &Path, src: &mut dyn Source) -> Result<()> {
         ));
     }
     if head != b"PAR1" || &tail[4..] != b"PAR1" {
-        return Err(damaged(path, "the file does not begin and end with the Parquet marker PAR1"));
+        return Err(damaged(
+            path,
+            "the file does not begin and end with the Parquet marker PAR1",
+        ));
     }
     let meta_len = u64::from(u32::from_le_bytes([tail[0], tail[1], tail[2], tail[3]]));
     if meta_len > len - 12 {
@@ -604,8 +617,12 @@ fn check(path: &Path, src: &mut dyn Source) -> Result<()> {
     }
     let data_end = len - 8 - meta_len;
     let footer = src.read_at(data_end, meta_len as usize).map_err(io)?;
-    let meta = read_file_meta(&mut Compact::new(&footer))
-        .map_err(|f| damaged(path, format!("its footer cannot be read ({})", fault_text(f))))?;
+    let meta = read_file_meta(&mut Compact::new(&footer)).map_err(|f| {
+        damaged(
+            path,
+            format!("its footer cannot be read ({})", fault_text(f)),
+        )
+    })?;
     if meta.encrypted {
         return Err(Error::input(
             Location::file(path),
@@ -632,11 +649,16 @@ fn check(path: &Path, src: &mut dyn Source) -> Result<()> {
         if rows < 0 {
             return Err(Error::input(
                 at_group(),
-                format!("cannot read as Parquet: the row group claims {rows} rows; the file is damaged"),
+                format!(
+                    "cannot read as Parquet: the row group claims {rows} rows; the file is damaged"
+                ),
             ));
         }
         rows_seen = rows_seen.checked_add(rows).ok_or_else(|| {
-            Error::input(at_group(), "cannot read as Parquet: row counts overflow; the file is damaged")
+            Error::input(
+                at_group(),
+                "cannot read as Parquet: row counts overflow; the file is damaged",
+            )
         })?;
         if group.columns.len() != leaves.len() {
             return Err(Error::input(
@@ -650,9 +672,8 @@ fn check(path: &Path, src: &mut dyn Source) -> Result<()> {
             ));
         }
         for (chunk, leaf) in group.columns.iter().zip(&leaves) {
-            values_seen = values_seen.saturating_add(check_chunk(
-                path, src, g, rows, chunk, leaf, data_end,
-            )?);
+            values_seen =
+                values_seen.saturating_add(check_chunk(path, src, g, rows, chunk, leaf, data_end)?);
         }
     }
     if rows_seen != file_rows {
@@ -680,7 +701,8 @@ fn schema_leaves(path: &Path, schema: &[SchemaElement]) -> Result<Vec<Leaf>> {
     };
     let mut leaves = Vec::new();
     // (children left, name prefix, repeated above) for each open group.
-    let mut open: Vec<(i64, String, bool)> = vec![(root.num_children.unwrap_or(0), String::new(), false)];
+    let mut open: Vec<(i64, String, bool)> =
+        vec![(root.num_children.unwrap_or(0), String::new(), false)];
     if open[0].0 < 0 {
         return Err(bad(format!("claims {} columns", open[0].0)));
     }
@@ -693,7 +715,10 @@ fn schema_leaves(path: &Path, schema: &[SchemaElement]) -> Result<Vec<Leaf>> {
         top.0 -= 1;
         let (prefix, repeated) = (top.1.clone(), top.2);
         let Some(e) = schema.get(i) else {
-            return Err(bad(format!("claims more entries than the {} it holds", schema.len())));
+            return Err(bad(format!(
+                "claims more entries than the {} it holds",
+                schema.len()
+            )));
         };
         i += 1;
         let name = if prefix.is_empty() {
@@ -737,7 +762,9 @@ fn check_chunk(
     let refuse = |what: String| {
         Error::input(
             loc(),
-            format!("cannot read as Parquet: {what}; the file is damaged or was not written completely"),
+            format!(
+                "cannot read as Parquet: {what}; the file is damaged or was not written completely"
+            ),
         )
     };
     if chunk.file_path.is_some() {
@@ -794,7 +821,9 @@ fn check_chunk(
         _ => data_offset,
     };
     if start < 4 {
-        return Err(refuse(format!("the column's pages start at byte {data_offset}")));
+        return Err(refuse(format!(
+            "the column's pages start at byte {data_offset}"
+        )));
     }
     let start = start as u64;
     let end = start.saturating_add(compressed);
@@ -820,9 +849,7 @@ fn check_chunk(
             return Err(at("gives no type or size".into()));
         };
         if u < 0 || c < 0 {
-            return Err(at(format!(
-                "claims {c} bytes stored and {u} decompressed"
-            )));
+            return Err(at(format!("claims {c} bytes stored and {u} decompressed")));
         }
         let (u, c) = (u as u64, c as u64);
         let body = pos + header_len as u64;
@@ -877,7 +904,9 @@ fn check_chunk(
                 seen_dictionary = true;
                 // Dictionary entries are stored plain: at least one bit each.
                 if n < 0 || n as u64 > u.saturating_mul(8) {
-                    return Err(at(format!("claims a dictionary of {n} values in {u} bytes")));
+                    return Err(at(format!(
+                        "claims a dictionary of {n} values in {u} bytes"
+                    )));
                 }
             }
             1 => {}
