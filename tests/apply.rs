@@ -920,6 +920,100 @@ fn report_lines_agree_with_the_figures_beside_them() {
 }
 
 #[test]
+fn rows_whose_code_came_from_a_decision_are_counted_and_named_as_such() {
+    // Guards: rows a decision matched to no unit were reported as
+    // "missing-code: rows with an empty code", and rows whose code came
+    // from a decision were not named at all. The table is shaped as
+    // `regionkey match` writes it (match_status, match_method); the
+    // decided codes are those of the demo's decisions (24005 Baltimore
+    // County, 51760 Richmond city), 46113 Shannon County SD is carried
+    // (renamed Oglala Lakota County, 46102, in 2015: Census Bureau list of
+    // county changes, from memory).
+    let dir = tempfile::tempdir().unwrap();
+    let data = write(
+        dir.path(),
+        "matched.csv",
+        "county,year,n,code,match_status,match_method
+Baltimore,2020,5,24005,matched,decision
+Baltimore,2021,6,24005,matched,decision
+Richmond,2021,7,51760,matched,decision
+Shannon,2014,8,46113,matched,decision
+Chicago,2020,100,,unmatched,decision
+Chicago,2021,101,,unmatched,decision
+Nowhere,2020,9,,unmatched,
+Autauga,2020,3,01001,matched,exact
+",
+    );
+    let out = dir.path().join("out.csv");
+    let report = dir.path().join("report.csv");
+    regionkey()
+        .args(["apply", data.to_str().unwrap(), "--to-vintage", "2023"])
+        .args(["--code-column", "code", "--period-column", "year"])
+        .args(["--sum", "n", "-o"])
+        .arg(&out)
+        .arg("--report")
+        .arg(&report)
+        .assert()
+        .success()
+        .stderr(predicate::str::contains("decided: 3 (4 rows)"))
+        .stderr(predicate::str::contains("decided-none: 1 (2 rows)"))
+        .stderr(predicate::str::contains("missing-code: 1 (1 rows)"))
+        // 201 of the decided-none rows and 9 of the plain missing row.
+        .stderr(predicate::str::contains("not allocated 210"));
+    let items = read_rows(&report);
+    let kind = |k: &str| -> Vec<&Row> { items.iter().filter(|r| r["kind"] == k).collect() };
+    let decided: Vec<(&str, &str, &str)> = kind("decided")
+        .iter()
+        .map(|r| {
+            (
+                r["code"].as_str(),
+                r["rows"].as_str(),
+                r["first_line"].as_str(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        decided,
+        vec![
+            ("24005", "2", "2"),
+            ("46113", "1", "5"),
+            ("51760", "1", "4")
+        ]
+    );
+    let none = kind("decided-none");
+    assert_eq!(none.len(), 1);
+    assert_eq!(
+        (none[0]["rows"].as_str(), none[0]["first_line"].as_str()),
+        ("2", "6")
+    );
+    assert!(none[0]["detail"].contains("decision"), "{:?}", none[0]);
+    let missing = kind("missing-code");
+    assert_eq!(missing.len(), 1);
+    assert_eq!(
+        (
+            missing[0]["rows"].as_str(),
+            missing[0]["first_line"].as_str()
+        ),
+        ("1", "8")
+    );
+    // A decided code keeps its other lines: 46113 is still reported carried.
+    assert!(kind("carried").iter().any(|r| r["code"] == "46113"));
+    // The sidecar counts them too.
+    let meta: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out.csv.json")).unwrap())
+            .unwrap();
+    let counts = &meta["counts"];
+    assert_eq!(counts["rows_with_decided_codes"], 4, "{meta}");
+    assert_eq!(counts["codes_decided"], 3);
+    assert_eq!(counts["rows_decided_none"], 2);
+    // The figures of decided codes are allocated like any other: 5 + 6 + 7
+    // + 8 + 3 of the 239 in are allocated.
+    let rows = read_rows(&out);
+    let total: f64 = rows.iter().filter_map(|r| r["n"].parse::<f64>().ok()).sum();
+    assert_eq!(total, 29.0);
+}
+
+#[test]
 fn a_code_column_of_names_or_a_state_column_of_years_is_refused_naming_it() {
     // Guards: both exited 0 with every row unmatched.
     let dir = tempfile::tempdir().unwrap();

@@ -605,16 +605,42 @@ fn apply_names_the_line_of_a_weight_outside_zero_to_one() {
         .stderr(predicate::str::contains("01001 -> 01003 is -0.5"));
 }
 
-// Ignored: a damaged Parquet file (fixtures/damaged/README.md) makes the
-// polars decoder ask for 2^61 bytes and the process aborts (exit 134); no
-// panic guard can catch an allocation failure. Needs a check of the Parquet
-// metadata before polars decodes it. Run with `--ignored`.
+// A damaged Parquet file (fixtures/damaged/README.md) whose data page in
+// column "basis" claims -23 values: the polars decoder asked for 2^61 bytes
+// and the process aborted (exit 134), before any panic guard could act.
+// The footer and page headers are now checked before polars reads them.
 #[test]
-#[ignore]
 fn a_parquet_file_whose_metadata_claims_an_impossible_size_is_refused() {
     rk().args(["inspect", "fixtures/damaged/parquet-decoder-abort.parquet"])
         .env("RUST_BACKTRACE", "0")
         .assert()
         .code(1)
-        .stderr(predicate::str::contains("parquet-decoder-abort.parquet"));
+        .stderr(predicate::str::contains(
+            "parquet-decoder-abort.parquet: row group 1: column \"basis\"",
+        ))
+        .stderr(predicate::str::contains("claims -23 values"))
+        .stderr(predicate::str::contains("panicked").not());
+}
+
+// The same file as apply's data table: apply reads Parquet through its own
+// reader (only the columns it needs), checked the same way.
+#[test]
+fn apply_refuses_the_damaged_parquet_file_naming_row_group_and_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let cw = dir.path().join("cw.csv");
+    std::fs::write(&cw, "from_code,to_code,weight\n09001,09190,1\n").unwrap();
+    rk().args([
+        "apply",
+        "fixtures/damaged/parquet-decoder-abort.parquet",
+        "--crosswalk",
+    ])
+    .arg(&cw)
+    .args(["--code-column", "from_code", "--sum", "weight", "-o"])
+    .arg(dir.path().join("out.csv"))
+    .env("RUST_BACKTRACE", "0")
+    .assert()
+    .code(1)
+    .stderr(predicate::str::contains(
+        "parquet-decoder-abort.parquet: row group 1: column \"basis\"",
+    ));
 }

@@ -25,17 +25,16 @@ use std::path::PathBuf;
 
 use super::{say, warn, Global};
 use crate::core::allocate::{allocate_range, Allocation, MeanWeight, Measure, Origin, Plan, Spec};
+use crate::core::carrying::plan_to_vintage;
 use crate::core::chain::{check, ChainError};
 use crate::core::composite;
-use crate::core::crosswalk::{Basis, Crosswalk, CrosswalkRow};
+use crate::core::crosswalk::Crosswalk;
 use crate::core::fips::{CodeForm, FipsError};
-use crate::core::history::{carry, Carried};
-use crate::core::reference::{ChangeKind, Reference};
 use crate::error::{Error, Location, Result};
 use crate::io::builtin::us_counties;
 use crate::io::composites as composites_io;
 use crate::io::crosswalk_file;
-use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout};
+use crate::io::data::{self, DataSpec, DataTable, Indexed, RawCode, ResultLayout, DECIDED};
 use crate::io::output::{
     sidecar_path, write_csv_record, NumberFormat, Sidecar, SidecarInput, Staged, Target, Written,
 };
@@ -468,8 +467,16 @@ impl Config {
             period_column: args.period_column.clone(),
             value_columns,
             missing,
+            method_column: None,
         };
-        let data = data::resolve_columns(&data)?;
+        let mut data = data::resolve_columns(&data)?;
+        // The method column of `regionkey match` (prefixed when the input
+        // had one of that name), so rows decided by a person are named so.
+        let names = data::column_names(&data)?;
+        data.method_column = ["rk_match_method", "match_method"]
+            .iter()
+            .find(|m| names.iter().any(|n| n == *m))
+            .map(|m| m.to_string());
         let output = Target::parse(&args.output);
         output.check_writable()?;
         // With --emit-sql the output is the query, whatever its extension.
@@ -623,236 +630,6 @@ fn output_header(config: &Config, with_names: bool) -> (Vec<String>, Vec<Option<
     (header, notes)
 }
 
-/// The rows a crosswalk has for one source code.
-fn rows_for<'a>(cw: &'a Crosswalk, code: &str) -> impl Iterator<Item = &'a CrosswalkRow> + 'a {
-    let start = cw.rows.partition_point(|r| r.from_code.as_str() < code);
-    let code = code.to_string();
-    cw.rows[start..]
-        .iter()
-        .take_while(move |r| r.from_code == code)
-}
-
-fn sorted(mut cw: Crosswalk) -> Crosswalk {
-    cw.sort();
-    cw
-}
-
-/// The crosswalk that carries each data code onto the counties of `year`.
-struct Carrying {
-    crosswalk: Crosswalk,
-    /// Sources of the plan that belong to earlier vintages (data codes
-    /// carried, and the other sources of the weight tables they reach).
-    carried: BTreeSet<String>,
-    findings: Vec<Finding>,
-    /// Divided codes without weights: (code, note).
-    unweighted: Vec<(String, String)>,
-}
-
-/// True when every change that carries `code` away is a rename: the unit
-/// is the same land, so it makes up the whole of its new code.
-fn renamed_only(reference: &Reference, code: &str) -> bool {
-    reference
-        .changes
-        .iter()
-        .filter(|c| {
-            c.from_code == code
-                && c.to_code != code
-                && c.kind != ChangeKind::PartTransfer
-                && c.kind != ChangeKind::Created
-        })
-        .all(|c| c.kind == ChangeKind::Renamed)
-}
-
-fn carry_codes(
-    codes: &BTreeMap<String, (u64, u64)>,
-    year: u16,
-    reference: &Reference,
-    user: Option<&Crosswalk>,
-    shipped: Option<&Crosswalk>,
-    shipped_label: &str,
-) -> Carrying {
-    let mut out = Carrying {
-        crosswalk: Crosswalk::default(),
-        carried: BTreeSet::new(),
-        findings: Vec::new(),
-        unweighted: Vec::new(),
-    };
-    // The targets that each weight table's rows reach (user's, shipped),
-    // with the data codes that reach them.
-    let mut reached_by: [BTreeMap<String, BTreeSet<String>>; 2] = Default::default();
-    let take = |reached: &mut BTreeMap<String, BTreeSet<String>>, rows: &[CrosswalkRow]| {
-        for r in rows {
-            if let Some(t) = &r.to_code {
-                reached
-                    .entry(t.clone())
-                    .or_default()
-                    .insert(r.from_code.clone());
-            }
-        }
-    };
-    for (code, &(rows, first_line)) in codes {
-        let finding = |kind: &'static str, detail: String| Finding {
-            kind,
-            code: code.clone(),
-            period: String::new(),
-            rows,
-            first_line: Some(first_line),
-            detail,
-        };
-        let valid_now = reference.unit(code, year).is_some();
-        if let Some(user) = user {
-            let rows: Vec<CrosswalkRow> = rows_for(user, code).cloned().collect();
-            if !rows.is_empty() {
-                if !valid_now {
-                    out.carried.insert(code.clone());
-                }
-                out.findings.push(finding(
-                    "from-crosswalk",
-                    format!("{} row(s) of the given crosswalk", rows.len()),
-                ));
-                take(&mut reached_by[0], &rows);
-                out.crosswalk.rows.extend(rows);
-                continue;
-            }
-        }
-        match carry(reference, code, year) {
-            Carried::Same => out.crosswalk.rows.push(CrosswalkRow {
-                from_code: code.clone(),
-                to_code: Some(code.clone()),
-                weight: 1.0,
-                target_share: Some(1.0),
-                basis: Basis::History,
-            }),
-            Carried::To { code: to, note } => {
-                out.carried.insert(code.clone());
-                let rows: Vec<CrosswalkRow> = if year == 2023 {
-                    shipped
-                        .map(|s| rows_for(s, code).cloned().collect())
-                        .unwrap_or_default()
-                } else {
-                    Vec::new()
-                };
-                if !rows.is_empty() {
-                    out.findings.push(finding(
-                        "carried",
-                        format!("carried to {to} ({note}); weights from {shipped_label}"),
-                    ));
-                    take(&mut reached_by[1], &rows);
-                    out.crosswalk.rows.extend(rows);
-                    continue;
-                }
-                let whole = renamed_only(reference, code);
-                let detail = if whole {
-                    format!("carried one to one to {to} ({note})")
-                } else {
-                    format!("carried to {to} ({note}); counts are added to {to}; its share of {to} is unknown, so means weighted by target share leave it out")
-                };
-                out.findings.push(finding("carried", detail));
-                out.crosswalk.rows.push(CrosswalkRow {
-                    from_code: code.clone(),
-                    to_code: Some(to),
-                    weight: 1.0,
-                    target_share: whole.then_some(1.0),
-                    basis: Basis::History,
-                });
-            }
-            Carried::Divided { successors, note } => {
-                out.carried.insert(code.clone());
-                let rows: Vec<CrosswalkRow> = if year == 2023 {
-                    shipped
-                        .map(|s| rows_for(s, code).cloned().collect())
-                        .unwrap_or_default()
-                } else {
-                    Vec::new()
-                };
-                if rows.is_empty() {
-                    out.unweighted.push((
-                        code.clone(),
-                        format!("{note}; successors {}", successors.join(", ")),
-                    ));
-                    out.findings.push(finding(
-                        "divided-without-weights",
-                        format!("divided among {} ({note}); no weights: rows left out. Give --crosswalk FILE with rows from {code} to the {year} units", successors.join(", ")),
-                    ));
-                } else {
-                    out.findings.push(finding(
-                        "divided",
-                        format!(
-                            "divided among {} ({note}); weights from {shipped_label}",
-                            successors.join(", ")
-                        ),
-                    ));
-                    take(&mut reached_by[1], &rows);
-                    out.crosswalk.rows.extend(rows);
-                }
-            }
-            Carried::Unknown => out.findings.push(finding(
-                "unknown-code",
-                "not a county code of any vintage in the built-in reference; rows left out"
-                    .to_string(),
-            )),
-        }
-    }
-    // The other pieces of the targets that weighted rows reach: sources of
-    // the weight tables with no row in the data. They join the plan as
-    // carried sources without values, so the coverage of those targets
-    // counts what is missing (a region made mostly of counties absent from
-    // the data is not fully covered). A table adds its sources to the
-    // targets its own rows reach, and to those the other table's rows
-    // reach from codes it also has (the same vintage); not to targets
-    // reached only from codes of another vintage: the shipped table's 2017
-    // sources beside a user's table from 2000 codes would count the same
-    // land twice, once as missing.
-    let tables = [user, shipped];
-    let wanted_targets: Vec<BTreeSet<String>> = (0..2)
-        .map(|i| {
-            let Some(table) = tables[i] else {
-                return BTreeSet::new();
-            };
-            let mut t: BTreeSet<String> = reached_by[i].keys().cloned().collect();
-            t.extend(
-                reached_by[1 - i]
-                    .iter()
-                    .filter(|(_, from)| from.iter().any(|c| rows_for(table, c).next().is_some()))
-                    .map(|(to, _)| to.clone()),
-            );
-            t
-        })
-        .collect();
-    let present: BTreeSet<String> = out
-        .crosswalk
-        .rows
-        .iter()
-        .map(|r| r.from_code.clone())
-        .collect();
-    let mut extra: Vec<CrosswalkRow> = Vec::new();
-    let mut taken: BTreeSet<String> = BTreeSet::new();
-    for (table, reached) in tables.iter().zip(&wanted_targets) {
-        let Some(table) = table else { continue };
-        let wanted: BTreeSet<&str> = table
-            .rows
-            .iter()
-            .filter(|r| r.to_code.as_ref().is_some_and(|t| reached.contains(t)))
-            .map(|r| r.from_code.as_str())
-            .filter(|c| !present.contains(*c) && !taken.contains(*c))
-            .collect();
-        for code in wanted {
-            out.carried.insert(code.to_string());
-            // Only the pieces inside reached targets: a source's pieces
-            // elsewhere would add rows for units no data reaches.
-            extra.extend(
-                rows_for(table, code)
-                    .filter(|r| r.to_code.as_ref().is_some_and(|t| reached.contains(t)))
-                    .cloned(),
-            );
-            taken.insert(code.to_string());
-        }
-    }
-    out.crosswalk.rows.extend(extra);
-    out.crosswalk.sort();
-    out
-}
-
 /// How one count variable balances: what came in is what was allocated,
 /// plus what lies outside every target, plus what was left out.
 #[derive(Debug, Clone, PartialEq)]
@@ -914,6 +691,11 @@ pub struct Report {
     pub periods: usize,
     /// Codes of the data carried from earlier vintages.
     pub carried: usize,
+    /// Rows whose code came from a person's decision (`match_method`
+    /// `decision`), and their distinct codes.
+    pub decided: (u64, usize),
+    /// Rows a decision matched to no unit (left out as decided).
+    pub decided_none: u64,
     /// (code, period) cells with more than one row.
     pub duplicates: u64,
     /// Every reported row, sorted.
@@ -1039,14 +821,28 @@ fn check_column_contents(
 pub fn execute(config: &Config) -> Result<Report> {
     let table = data::read(&config.data)?;
     let indexed = table.index();
+    let decided = table.decided(&indexed);
     let mut findings: Vec<Finding> = Vec::new();
-    if indexed.missing_code.0 > 0 {
+    if decided.missing_otherwise.0 > 0 {
         findings.push(finding(
             "missing-code",
             String::new(),
-            indexed.missing_code.0,
-            indexed.missing_code.1,
+            decided.missing_otherwise.0,
+            decided.missing_otherwise.1,
             format!("rows with an empty {}; left out", config.data.code_column),
+        ));
+    }
+    if decided.none.0 > 0 {
+        findings.push(finding(
+            "decided-none",
+            String::new(),
+            decided.none.0,
+            decided.none.1,
+            format!(
+                "rows a person's decision matched to no unit (empty {}, {} {DECIDED}); left out as decided",
+                config.data.code_column,
+                config.data.method_column.as_deref().unwrap_or("match_method")
+            ),
         ));
     }
     if indexed.missing_period.0 > 0 {
@@ -1160,22 +956,16 @@ pub fn execute(config: &Config) -> Result<Report> {
             } else {
                 None
             };
-            // Carrying to a county vintage: the user's table is of county
-            // codes, however few (a short table of 4-digit codes is not
-            // recognized as counties by its look alone).
-            let user = config.crosswalk.as_ref().map(|(_, cw)| {
-                let mut cw = cw.clone();
-                cw.normalize_codes_as(CodeForm::County, CodeForm::County);
-                sorted(cw)
-            });
-            let c = carry_codes(
+            let v = plan_to_vintage(
                 &by_code,
                 year,
                 reference,
-                user.as_ref(),
+                config.crosswalk.as_ref().map(|(_, cw)| cw),
                 shipped.as_ref(),
                 SHIPPED_CROSSWALK,
+                config.all_units,
             );
+            let c = v.carrying;
             if !c.unweighted.is_empty() && !config.skip_unweighted {
                 let listed: Vec<String> = c
                     .unweighted
@@ -1188,33 +978,11 @@ pub fn execute(config: &Config) -> Result<Report> {
                     listed.join("; ")
                 )));
             }
-            findings.extend(c.findings);
-            // Every unit of the vintage with --all-units; otherwise the units
-            // the data's codes reach.
-            let mut targets: Vec<String> = if config.all_units {
-                reference.units_in(year).map(|u| u.code.clone()).collect()
-            } else {
-                Vec::new()
-            };
-            targets.sort();
-            targets.dedup();
-            let carried_sources = c.carried;
-            let plan = Plan::new(&c.crosswalk, &targets, |code| {
-                if carried_sources.contains(code) {
-                    Origin::Carried
-                } else {
-                    Origin::Direct
-                }
-            });
-            let names: Vec<String> = plan
-                .targets
-                .iter()
-                .map(|t| {
-                    reference
-                        .unit(t, year)
-                        .map_or(String::new(), |u| u.full_name())
-                })
-                .collect();
+            findings.extend(
+                c.notes
+                    .into_iter()
+                    .map(|n| finding(n.kind.as_str(), n.code, n.rows, n.first_line, n.detail)),
+            );
             let label = match &config.crosswalk {
                 Some((p, _)) => format!(
                     "built-in change history to {year}, {}, {}",
@@ -1223,13 +991,13 @@ pub fn execute(config: &Config) -> Result<Report> {
                 ),
                 None => format!("built-in change history to {year}, {SHIPPED_CROSSWALK}"),
             };
-            // Codes of the data that were carried (not the other sources of
-            // the weight tables, which hold no data).
-            let carried = by_code
-                .keys()
-                .filter(|c| carried_sources.contains(*c))
-                .count();
-            (c.crosswalk, plan, carried, Some(names), label)
+            (
+                c.crosswalk,
+                v.plan,
+                v.carried_codes,
+                Some(v.target_names),
+                label,
+            )
         }
         None => {
             let (path, cw) = config
@@ -1337,6 +1105,31 @@ pub fn execute(config: &Config) -> Result<Report> {
                 "not a source code of the crosswalk; rows left out".into(),
             ));
         }
+    }
+    // Codes taken from a person's decision, once per code as read (after
+    // the lines above, which a code's other findings do not hide).
+    let mut decided_codes: BTreeMap<String, (u64, u64)> = BTreeMap::new();
+    for ((raw, n), &(rows, first)) in indexed.codes.iter().zip(&normalized).zip(&decided.by_code) {
+        if rows == 0 {
+            continue;
+        }
+        let code = n.clone().unwrap_or_else(|| raw.code.clone());
+        let e = decided_codes.entry(code).or_insert((0, first));
+        e.0 += rows;
+        e.1 = e.1.min(first);
+    }
+    let decided_rows: u64 = decided_codes.values().map(|(rows, _)| rows).sum();
+    for (code, &(rows, first)) in &decided_codes {
+        findings.push(finding(
+            "decided",
+            code.clone(),
+            rows,
+            first,
+            format!(
+                "the code came from a person's decision ({} {DECIDED}); allocated like any other code",
+                config.data.method_column.as_deref().unwrap_or("match_method")
+            ),
+        ));
     }
     let cells = indexed.periods.len() as u64 * (plan.sources.len() + pooled.len()) as u64;
     if cells >= u32::MAX as u64 {
@@ -1654,6 +1447,8 @@ pub fn execute(config: &Config) -> Result<Report> {
         targets: plan.targets.len(),
         periods: if with_period { periods } else { 0 },
         carried,
+        decided: (decided_rows, decided_codes.len()),
+        decided_none: decided.none.0,
         duplicates,
         findings,
         counts,
@@ -1994,6 +1789,9 @@ fn sidecar_record(config: &Config, s: &Report) -> Result<Sidecar> {
             "targets": s.targets,
             "periods": s.periods,
             "codes_carried": s.carried,
+            "rows_with_decided_codes": s.decided.0,
+            "codes_decided": s.decided.1,
+            "rows_decided_none": s.decided_none,
             "duplicate_cells": s.duplicates,
             "reported": reported,
         }),

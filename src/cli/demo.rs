@@ -16,9 +16,7 @@ use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use clap::Parser;
-
-use super::{say, Global};
+use super::{say, warn, Global};
 use crate::error::{Error, Result};
 use crate::io::output::write_file;
 use crate::io::table::{read_table, ReadOptions};
@@ -481,21 +479,28 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     let first_review = dir.join("review-first-pass.csv");
     let matched = dir.join("matched.csv");
     let review = dir.join("review.csv");
-    let quiet = Global { quiet: true };
-    super::match_names::run(
-        match_args(
+    let first = super::match_names::configure(
+        &match_args(
             &reports,
             None,
             &dir.join("matched-first-pass.csv"),
             &first_review,
-        )?,
-        quiet,
+        ),
+        Global { quiet: true },
     )?;
+    super::match_names::execute(&first)?;
     say(global, "\n== 1. match names to county codes (each year against its own vintage), with the analyst's decisions");
-    super::match_names::run(
-        match_args(&reports, Some(&decisions), &matched, &review)?,
+    let second = super::match_names::configure(
+        &match_args(&reports, Some(&decisions), &matched, &review),
         global,
     )?;
+    let done = super::match_names::execute(&second)?;
+    for w in &done.warnings {
+        warn(w);
+    }
+    for line in match_summary(&done) {
+        say(global, line);
+    }
 
     // 2. Carry everything onto 2023 counties, with coverage.
     say(
@@ -616,35 +621,62 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     Ok(())
 }
 
+/// The match step's arguments, as a user would give them on the command
+/// line (names in "county", states in "state", each row matched against
+/// the counties of its "year").
 fn match_args(
     input: &Path,
     decisions: Option<&Path>,
     output: &Path,
     review: &Path,
-) -> Result<super::match_names::Args> {
-    let parsed = super::Cli::try_parse_from([
-        "regionkey",
-        "match",
-        &arg(input),
-        "--name-column",
-        "county",
-        "--state-column",
-        "state",
-        "--vintage-column",
-        "year",
-        "--output",
-        &arg(output),
-        "--review",
-        &arg(review),
-    ])
-    .map_err(|e| Error::Usage(format!("demo: {e}")))?;
-    let super::Command::Match(mut a) = parsed.command else {
-        return Err(Error::Usage(
-            "demo: match arguments did not parse as `match`".into(),
+) -> super::match_names::Args {
+    super::match_names::Args {
+        input: input.to_path_buf(),
+        name_column: "county".into(),
+        state_column: Some("state".into()),
+        vintage: None,
+        vintage_column: Some("year".into()),
+        level: None,
+        reference: None,
+        composites: None,
+        decisions: decisions.map(Path::to_path_buf),
+        output: arg(output),
+        review: Some(arg(review)),
+        distinct_keys: None,
+        delimiter: None,
+    }
+}
+
+/// What the match step did, in the words of `regionkey match`'s summary.
+fn match_summary(report: &super::match_names::Report) -> Vec<String> {
+    use crate::core::matcher::Status;
+    let t = &report.tally;
+    let n = |s| t.by_status.get(&s).copied().unwrap_or(0);
+    let methods: Vec<String> = t
+        .by_method
+        .iter()
+        .map(|(m, c)| format!("{} {c}", m.as_str()))
+        .collect();
+    let mut lines = vec![
+        format!(
+            "regionkey match: {} rows, {} distinct names",
+            t.rows, t.names
+        ),
+        format!(
+            "  matched   {} ({})",
+            n(Status::Matched),
+            methods.join(", ")
+        ),
+        format!("  review    {}", n(Status::Review)),
+        format!("  unmatched {}", n(Status::Unmatched)),
+    ];
+    if t.decisions > 0 {
+        lines.push(format!(
+            "  decisions used: {} of {}",
+            t.decisions_used, t.decisions
         ));
-    };
-    a.decisions = decisions.map(Path::to_path_buf);
-    Ok(a)
+    }
+    lines
 }
 
 fn count_by(path: &Path, column: &str) -> Result<BTreeMap<String, usize>> {

@@ -3,6 +3,7 @@
 
 pub mod allocate;
 pub mod audit;
+pub mod carrying;
 pub mod chain;
 pub mod classify;
 pub mod composite;

@@ -24,7 +24,7 @@ pub use crate::io::output::{csv_field, sha256_file};
 use crate::io::output::{fixed, NumberFormat};
 use crate::io::table::{
     check_text, decode_owned, detect_delimiter, find_column, is_parquet, read_table_bytes,
-    record_lines, ReadOptions,
+    record_lines, ReadOptions, Table,
 };
 use std::ops::Range;
 
@@ -45,6 +45,10 @@ pub struct DataSpec {
     pub value_columns: Vec<String>,
     /// Texts that mean "no value" besides an empty field.
     pub missing: Vec<String>,
+    /// The column where `regionkey match` wrote how each row's code was
+    /// found (`match_method`), if the table has one: rows whose code came
+    /// from a person's decision are then counted as such.
+    pub method_column: Option<String>,
 }
 
 /// Column names of a data file, read without reading the rows.
@@ -55,10 +59,17 @@ pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
     let n = std::io::Read::read(&mut &file, &mut head)
         .map_err(|e| Error::io(path, "cannot read", e))?;
     if is_parquet(path, &head[..n]) {
+        crate::io::guard::parquet::check_file(path)?;
         let mut reader = ParquetReader::new(file);
-        let schema = reader.schema().map_err(|e| {
-            Error::input(Location::file(path), format!("cannot read as Parquet: {e}"))
-        })?;
+        let damaged = || {
+            Error::input(
+                Location::file(path),
+                "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+            )
+        };
+        let schema = crate::io::guard::catch(|| reader.schema())
+            .map_err(|_| damaged())?
+            .map_err(|_| damaged())?;
         return Ok(schema.iter_names().map(|n| n.to_string()).collect());
     }
     let line = first_line(path)?;
@@ -120,6 +131,7 @@ pub fn resolve_columns(spec: &DataSpec) -> Result<DataSpec> {
         state_column: spec.state_column.as_ref().map(find).transpose()?,
         period_column: spec.period_column.as_ref().map(find).transpose()?,
         value_columns: spec.value_columns.iter().map(find).collect::<Result<_>>()?,
+        method_column: spec.method_column.as_ref().map(find).transpose()?,
         ..spec.clone()
     })
 }
@@ -133,6 +145,7 @@ pub struct DataTable {
     codes: StringChunked,
     states: Option<StringChunked>,
     periods: Option<StringChunked>,
+    methods: Option<StringChunked>,
     values: Vec<Float64Chunked>,
     /// The value columns, in the order of [`DataSpec::value_columns`].
     pub value_columns: Vec<String>,
@@ -173,6 +186,7 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         Some(&spec.code_column),
         spec.state_column.as_ref(),
         spec.period_column.as_ref(),
+        spec.method_column.as_ref(),
     ]
     .into_iter()
     .flatten()
@@ -180,28 +194,8 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     let mut lines: Option<Arc<[u64]>> = None;
     let mut warnings = Vec::new();
     let df = if is_parquet(path, &head[..n]) {
-        let all: Vec<String> = text_columns
-            .iter()
-            .map(|s| s.to_string())
-            .chain(spec.value_columns.clone())
-            .collect();
-        let df = ParquetReader::new(file)
-            .with_columns(Some(all))
-            .finish()
-            .map_err(|e| polars_error(path, e))?;
-        let mut columns = Vec::new();
-        for name in &text_columns {
-            let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(
-                c.cast(&DataType::String)
-                    .map_err(|e| polars_error(path, e))?,
-            );
-        }
-        for name in &spec.value_columns {
-            let c = df.column(name).map_err(|e| polars_error(path, e))?;
-            columns.push(to_numbers(path, name, c, &|i| i as u64 + 2)?);
-        }
-        DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+        crate::io::guard::parquet::check_file(path)?;
+        read_parquet(spec, file, &text_columns)?
     } else {
         // One decoding for every table: the bytes checked, then UTF-8 or
         // Windows-1252, as io::table reads them.
@@ -219,38 +213,47 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
             lines = Some(record_lines(&text, sep, fields).into());
         }
         // Blank lines are not rows (as for every table regionkey reads).
-        let text = if blank { drop_blank_lines(&text) } else { text };
-        let line = |i: usize| line_of(&lines, i);
-        match read_csv(spec, sep, &DataType::Float64, text.as_bytes()) {
-            Ok(df) => df,
+        let cleaned: std::borrow::Cow<str> = if blank {
+            drop_blank_lines(&text).into()
+        } else {
+            text.as_str().into()
+        };
+        let fast = match read_csv(spec, sep, &DataType::Float64, cleaned.as_bytes()) {
+            Ok(df) => Some(df),
             // A value polars cannot read as a number: read the values as
             // text to find where, and say so.
-            Err(_) => {
-                let df = match read_csv(spec, sep, &DataType::String, text.as_bytes()) {
-                    Ok(df) => df,
-                    // Not readable at all: say where, in the table reader's
-                    // words (ragged row, bad quoting), with the line.
-                    Err(e) => {
-                        read_table_bytes(
-                            path,
-                            text.as_bytes(),
-                            ReadOptions {
-                                delimiter: Some(sep),
-                            },
-                        )?;
-                        return Err(polars_error(path, e));
+            Err(_) => match read_csv(spec, sep, &DataType::String, cleaned.as_bytes()) {
+                Ok(df) => {
+                    let line = |i: usize| line_of(&lines, i);
+                    let mut columns: Vec<Column> = text_columns
+                        .iter()
+                        .map(|n| df.column(n).cloned())
+                        .collect::<PolarsResult<_>>()
+                        .map_err(|e| polars_error(path, e))?;
+                    for name in &spec.value_columns {
+                        let c = df.column(name).map_err(|e| polars_error(path, e))?;
+                        columns.push(to_numbers(path, name, c, &line)?);
                     }
-                };
-                let mut columns: Vec<Column> = text_columns
-                    .iter()
-                    .map(|n| df.column(n).cloned())
-                    .collect::<PolarsResult<_>>()
-                    .map_err(|e| polars_error(path, e))?;
-                for name in &spec.value_columns {
-                    let c = df.column(name).map_err(|e| polars_error(path, e))?;
-                    columns.push(to_numbers(path, name, c, &line)?);
+                    Some(DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?)
                 }
-                DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))?
+                Err(_) => None,
+            },
+        };
+        match fast {
+            Some(df) => df,
+            // Not readable by the fast path (a ragged row, quoting it reads
+            // otherwise, a column it does not find): read by the one table
+            // reader, whose errors name the line and column in our words.
+            None => {
+                let table = read_table_bytes(
+                    path,
+                    text.as_bytes(),
+                    ReadOptions {
+                        delimiter: Some(sep),
+                    },
+                )?;
+                lines = Some(table.lines.clone().into());
+                from_table(spec, &table, &text_columns)?
             }
         }
     };
@@ -281,11 +284,104 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
         codes: text(&spec.code_column)?,
         states: spec.state_column.as_ref().map(text).transpose()?,
         periods: spec.period_column.as_ref().map(text).transpose()?,
+        methods: spec.method_column.as_ref().map(text).transpose()?,
         values,
         value_columns: spec.value_columns.clone(),
         lines,
         warnings,
     })
+}
+
+/// Reads the columns `spec` names from a Parquet file already checked by
+/// [`crate::io::guard::parquet`]; a panic of the decoder is caught.
+fn read_parquet(
+    spec: &DataSpec,
+    file: std::fs::File,
+    text_columns: &[&String],
+) -> Result<DataFrame> {
+    let path = &spec.path;
+    let damaged = || {
+        Error::input(
+            Location::file(path),
+            "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+        )
+    };
+    let mut reader = ParquetReader::new(file);
+    let names: Vec<String> = crate::io::guard::catch(|| reader.schema())
+        .map_err(|_| damaged())?
+        .map_err(|_| damaged())?
+        .iter_names()
+        .map(|n| n.to_string())
+        .collect();
+    // Each column as the file names it (the one column rule).
+    let find = |name: &String| find_column(path, &names, name).map(|i| names[i].clone());
+    let file_text: Vec<String> = text_columns
+        .iter()
+        .map(|n| find(n))
+        .collect::<Result<_>>()?;
+    let file_values: Vec<String> = spec.value_columns.iter().map(find).collect::<Result<_>>()?;
+    let all: Vec<String> = file_text.iter().chain(&file_values).cloned().collect();
+    let df = crate::io::guard::catch(|| reader.with_columns(Some(all)).finish())
+        .map_err(|_| damaged())?
+        .map_err(|_| damaged())?;
+    let mut columns = Vec::new();
+    for (name, file_name) in text_columns.iter().zip(&file_text) {
+        let c = df.column(file_name).map_err(|e| polars_error(path, e))?;
+        let c = c.cast(&DataType::String).map_err(|_| {
+            Error::input(
+                Location::file(path).in_column(file_name.as_str()),
+                "cannot read the column as text",
+            )
+        })?;
+        columns.push(c.with_name(name.as_str().into()));
+    }
+    for (name, file_name) in spec.value_columns.iter().zip(&file_values) {
+        let c = df.column(file_name).map_err(|e| polars_error(path, e))?;
+        let c = to_numbers(path, file_name, c, &|i| i as u64 + 2)?;
+        columns.push(c.with_name(name.as_str().into()));
+    }
+    DataFrame::new_infer_height(columns).map_err(|e| polars_error(path, e))
+}
+
+/// The columns `spec` names, taken from a table the one table reader read:
+/// fields empty or equal to a missing marker are missing; a value that is
+/// not a number is an error naming its line and column.
+fn from_table(spec: &DataSpec, table: &Table, text_columns: &[&String]) -> Result<DataFrame> {
+    let missing = |v: &str| v.is_empty() || spec.missing.iter().any(|m| m == v);
+    let mut columns = Vec::new();
+    for name in text_columns {
+        let i = table.column(name)?;
+        let ca: StringChunked = table
+            .records
+            .iter()
+            .map(|r| Some(&r[i]).filter(|v| !missing(v)))
+            .collect();
+        columns.push(ca.with_name(name.as_str().into()).into_column());
+    }
+    for name in &spec.value_columns {
+        let i = table.column(name)?;
+        let mut out: Vec<Option<f64>> = Vec::with_capacity(table.len());
+        for (row, r) in table.records.iter().enumerate() {
+            let v = &r[i];
+            if missing(v) || v.trim().is_empty() {
+                out.push(None);
+                continue;
+            }
+            match v.trim().parse::<f64>() {
+                Ok(x) => out.push(Some(x)),
+                Err(_) => {
+                    return Err(Error::input(
+                        table.location(row, i),
+                        format!("{:?} is not a number; leave the field empty if the value is missing, or name the marker with --missing", v.trim()),
+                    ))
+                }
+            }
+        }
+        columns.push(
+            Float64Chunked::from_iter_options(name.as_str().into(), out.into_iter()).into_column(),
+        );
+    }
+    DataFrame::new_infer_height(columns).map_err(|e| polars_error(&spec.path, e))
 }
 
 /// `text` without its blank lines (line breaks inside quoted fields kept).
@@ -336,6 +432,7 @@ fn read_csv(
         Some(&spec.code_column),
         spec.state_column.as_ref(),
         spec.period_column.as_ref(),
+        spec.method_column.as_ref(),
     ]
     .into_iter()
     .flatten()
@@ -452,6 +549,23 @@ pub struct Indexed {
 
 const NONE: u32 = u32::MAX;
 
+/// Rows whose code came from a person's decision (`match_method` is
+/// `decision`), by what the decision gave.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Decided {
+    /// Rows a decision matched to no unit (an empty code), and the first
+    /// one's line.
+    pub none: (u64, u64),
+    /// Per distinct code of [`Indexed::codes`]: rows and first line.
+    pub by_code: Vec<(u64, u64)>,
+    /// Rows with no code that no decision left empty, and the first one's
+    /// line (all of [`Indexed::missing_code`] without a method column).
+    pub missing_otherwise: (u64, u64),
+}
+
+/// The method `regionkey match` writes for a code taken from a decision.
+pub const DECIDED: &str = "decision";
+
 impl DataTable {
     /// Numbers each row's code and period (one pass).
     pub fn index(&self) -> Indexed {
@@ -511,6 +625,35 @@ impl DataTable {
             row_code.push(id);
         }
         (codes, code_rows, row_code, missing_code)
+    }
+
+    /// Rows whose code came from a decision, when the table has a method
+    /// column (see [`DataSpec::method_column`]).
+    pub fn decided(&self, indexed: &Indexed) -> Decided {
+        let mut out = Decided {
+            none: (0, 0),
+            by_code: vec![(0, 0); indexed.codes.len()],
+            missing_otherwise: indexed.missing_code,
+        };
+        let Some(methods) = &self.methods else {
+            return out;
+        };
+        out.missing_otherwise = (0, 0);
+        for (i, m) in methods.iter().enumerate() {
+            let decided = m.map(str::trim) == Some(DECIDED);
+            let slot = match (indexed.row_code[i], decided) {
+                (NONE, true) => &mut out.none,
+                (NONE, false) => &mut out.missing_otherwise,
+                (id, true) => &mut out.by_code[id as usize],
+                (_, false) => continue,
+            };
+            let line = self.line(i);
+            slot.0 += 1;
+            if slot.1 == 0 {
+                slot.1 = line;
+            }
+        }
+        out
     }
 
     /// Distinct periods (sorted), each row's period id, and the rows with

@@ -431,6 +431,8 @@ fn csv_error(path: &Path, e: csv::Error, headers: &[String], text: &[u8]) -> Err
 
 fn read_parquet(path: &Path, bytes: Vec<u8>) -> Result<Table> {
     use polars::prelude::*;
+    // Sizes and counts checked first: some damage makes the decoder abort.
+    crate::io::guard::parquet::check_bytes(path, &bytes)?;
     let cursor = std::io::Cursor::new(bytes);
     // The Parquet decoder panics on some damaged files: guard it.
     let df = crate::io::guard::catch(|| ParquetReader::new(cursor).finish())
