@@ -198,16 +198,42 @@ def match(
     regionkey.RegionkeyError: the DataFrame: no column "county"; the columns are: name, st
     """
     kind = _kind(df)
-    table = _to_arrow(df)
-    names = _column(table, name_column, "name_column")
-    states = _column(table, state_column, "state_column")
-    years = _column(table, vintage_column, "vintage_column")
+    if kind == "pandas":
+        # Only the key columns cross into Arrow; the other columns stay as
+        # they are (a whole-frame round trip through Arrow costs more than
+        # the matching).
+        table = None
+        column_names = [str(c) for c in df.columns]
+
+        def key_column(name: Optional[str]) -> Optional[pa.Array]:
+            if name is None:
+                return None
+            if name not in column_names:
+                raise RegionkeyError(
+                    f'the DataFrame: no column "{name}"; the columns are: '
+                    + ", ".join(column_names)
+                )
+            column = df[name]
+            try:
+                return _text(pa.array(column, from_pandas=True))
+            except (pa.ArrowTypeError, pa.ArrowInvalid):
+                # A column of mixed objects (numbers among text): as text.
+                text = column.map(lambda v: None if v is None or v != v else str(v))
+                return _text(pa.array(text, type=pa.large_string()))
+
+        names, states, years = (key_column(c) for c in (name_column, state_column, vintage_column))
+    else:
+        table = _to_arrow(df)
+        column_names = table.column_names
+        names = _column(table, name_column, "name_column")
+        states = _column(table, state_column, "state_column")
+        years = _column(table, vintage_column, "vintage_column")
     if vintage is not None and vintage_column is not None:
         raise RegionkeyError("give vintage or vintage_column, not both")
     added = list(ADDED_COLUMNS)
-    if any(c in table.column_names for c in added):
+    if any(c in column_names for c in added):
         added = [COLUMN_PREFIX + c for c in added]
-        taken = [c for c in added if c in table.column_names]
+        taken = [c for c in added if c in column_names]
         if taken:
             raise RegionkeyError(
                 "the DataFrame: line 1: column {!r}: the input already has columns named like "
@@ -233,6 +259,15 @@ def match(
         )
     finally:
         shutil.rmtree(workdir, ignore_errors=True)
+    review = pa.table(result["review"])
+    if kind == "pandas":
+        import numpy as np
+
+        ids_np = np.frombuffer(result["row_ids"], dtype=np.uint32)
+        out = df.reset_index(drop=True)
+        for name, values in zip(added, result["distinct"]):
+            out[name] = np.asarray(values, dtype=object)[ids_np]
+        return out, review.to_pandas()
     ids = pa.Array.from_buffers(
         pa.uint32(), len(names), [None, pa.py_buffer(result["row_ids"])]
     )
@@ -243,7 +278,6 @@ def match(
     out = table
     for name, column in zip(added, columns):
         out = out.append_column(name, column)
-    review = pa.table(result["review"])
     return _from_arrow(out, kind), _from_arrow(review, kind if kind != "arrow" else "arrow")
 
 

@@ -104,3 +104,14 @@ def test_nulls_and_non_string_columns_are_read_as_text():
     matched, _ = regionkey.match(df, name_column="county", state_column="state")
     assert matched["match_status"].tolist()[1] == "unmatched"  # an empty name
     assert matched["code"].tolist()[2] == "06037"  # a code that lost its zero
+
+
+def test_a_pandas_column_of_text_and_numbers_is_read_as_text():
+    # Cook County, IL 17031 and Los Angeles County, CA 06037 (Census Bureau
+    # county list, from memory); the other columns come back as they went in.
+    df = pd.DataFrame({"county": ["Cook County, IL", None, 6037], "n": [1, 2, 3]},
+                      index=[10, 11, 12])
+    matched, _ = regionkey.match(df, name_column="county")
+    assert matched["code"].tolist() == ["17031", "", "06037"]
+    assert matched["n"].tolist() == [1, 2, 3] and str(matched["n"].dtype) == "int64"
+    assert list(matched.index) == [0, 1, 2]
