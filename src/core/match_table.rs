@@ -111,7 +111,9 @@ impl std::hash::Hasher for KeyHasher {
     }
 
     fn finish(&self) -> u64 {
-        self.0
+        // The table picks buckets by the low bits, which the last multiply
+        // leaves least mixed: rotate the well-mixed high bits down.
+        self.0.rotate_left(26)
     }
 }
 

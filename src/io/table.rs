@@ -365,7 +365,14 @@ fn read_delimited(path: &Path, bytes: &[u8], options: ReadOptions) -> Result<Tab
                 if record.len() == 1 && record[0].is_empty() && headers.len() > 1 {
                     continue;
                 }
-                records.push(std::mem::take(&mut record));
+                // Each record is allocated once at its exact size; the
+                // buffer read into keeps its capacity, so no record grows
+                // its buffers field by field (nor keeps the slack a clone
+                // of the buffer would).
+                let mut exact =
+                    csv::StringRecord::with_capacity(record.as_slice().len(), record.len());
+                exact.extend(record.iter());
+                records.push(exact);
                 lines.push(line);
             }
             Ok(false) => break,
