@@ -29,7 +29,7 @@ bin=${CARGO_TARGET_DIR:-$root/target}/release/regionkey
 cd /tmp
 case "${1:-match}" in
 match)
-    input=${WORK:-/tmp/regionkey-bench-match}/input.csv
+    input=${WORK:-/tmp/regionkey-bench-match}/input-1000000.csv
     mkdir -p "$(dirname "$input")"
     [ -f "$input" ] || python3 "$root/scripts/bench-match/generate.py" "$input" 1000000 2023
     "$root/$venv/bin/python" "$root/scripts/bench-python/match.py" "$input" "$bin" 3
