@@ -5,18 +5,10 @@
 
 use std::path::{Path, PathBuf};
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-fn regionkey() -> Command {
-    Command::cargo_bin("regionkey").unwrap()
-}
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
+mod common;
+use common::{regionkey, write};
 
 fn inputs(dir: &Path) -> (PathBuf, PathBuf) {
     let data = write(dir, "data.csv", "fips,year,pop,jobless\n1001,2020,100,5\n");

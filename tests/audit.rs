@@ -11,15 +11,8 @@
 
 use std::collections::BTreeSet;
 
-use assert_cmd::Command;
-
-fn atlas_2023_ids() -> BTreeSet<String> {
-    let text = std::fs::read_to_string("fixtures/reference/atlas-2023-ids.csv").unwrap();
-    text.lines()
-        .skip(1)
-        .map(|l| l.split(',').next().unwrap().to_string())
-        .collect()
-}
+mod common;
+use common::{atlas_2023_ids, regionkey};
 
 fn unemployment_ids() -> Vec<String> {
     let text = std::fs::read_to_string("fixtures/apply/unemployment.tsv").unwrap();
@@ -50,8 +43,7 @@ fn the_audit_of_the_unemployment_table_agrees_with_the_atlas_ids() {
     let dir = tempfile::tempdir().unwrap();
     let out_csv = dir.path().join("audit.csv");
     let states_csv = dir.path().join("states.csv");
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args([
             "audit",
             "fixtures/apply/unemployment.tsv",
@@ -120,8 +112,7 @@ fn strict_fails_on_duplicates_and_gaps_per_period_and_passes_a_clean_table() {
     )
     .unwrap();
     let out_csv = dir.path().join("audit.csv");
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args(["audit"])
         .arg(&table)
         .args([
@@ -157,8 +148,7 @@ fn strict_fails_on_duplicates_and_gaps_per_period_and_passes_a_clean_table() {
 
     let clean = dir.path().join("clean.csv");
     std::fs::write(&clean, "fips,year\n10001,2020\n10003,2020\n10005,2020\n").unwrap();
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args(["audit"])
         .arg(&clean)
         .args(["--code-column", "fips", "--period-column", "year"])
@@ -174,8 +164,7 @@ fn a_missing_code_column_names_the_file_and_the_columns() {
     let dir = tempfile::tempdir().unwrap();
     let table = dir.path().join("t.csv");
     std::fs::write(&table, "fips,year\n10001,2020\n").unwrap();
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args(["audit"])
         .arg(&table)
         .args(["--code-column", "geoid"])

@@ -1,12 +1,10 @@
 //! `regionkey chain` end to end on hand-built tables (arithmetic in the
 //! comments; see src/core/chain.rs for the derivation).
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-fn regionkey() -> Command {
-    Command::cargo_bin("regionkey").unwrap()
-}
+mod common;
+use common::regionkey;
 
 #[test]
 fn two_crosswalks_compose_into_the_direct_one() {

@@ -10,6 +10,8 @@ use regionkey::core::composite::NamedComposites;
 use regionkey::core::matcher::{CodeForm, Matcher, Method, Resolution, Status};
 use regionkey::io::builtin::us_counties;
 
+mod common;
+
 fn resolve(vintage: u16, name: &str, state: Option<&str>) -> Resolution {
     let reference = us_counties().unwrap();
     Matcher::new(reference, vintage, CodeForm::County).resolve(name, state)
@@ -121,35 +123,9 @@ fn names_with_a_part_that_is_no_unit_are_left_as_the_matcher_said() {
 mod command {
     //! `regionkey match` end to end on composite names.
 
-    use std::collections::BTreeMap;
-    use std::path::{Path, PathBuf};
-
-    use assert_cmd::Command;
     use predicates::prelude::*;
 
-    fn regionkey() -> Command {
-        Command::cargo_bin("regionkey").unwrap()
-    }
-
-    fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-        let p = dir.join(name);
-        std::fs::write(&p, text).unwrap();
-        p
-    }
-
-    fn read_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
-        let mut r = csv::Reader::from_path(path).unwrap();
-        let headers = r.headers().unwrap().clone();
-        r.records()
-            .map(|rec| {
-                headers
-                    .iter()
-                    .zip(rec.unwrap().iter())
-                    .map(|(h, v)| (h.to_string(), v.to_string()))
-                    .collect()
-            })
-            .collect()
-    }
+    use crate::common::{read_rows, regionkey, write};
 
     const INPUT: &str = "county,state,cases\n\
         New York City,NY,100\n\
@@ -279,48 +255,9 @@ mod applying {
     //! census counts as recalled (from memory; the checks are on the
     //! arithmetic, written beside each); case figures are made up.
 
-    use std::collections::BTreeMap;
-    use std::path::{Path, PathBuf};
+    use std::path::Path;
 
-    use assert_cmd::Command;
-
-    fn regionkey() -> Command {
-        Command::cargo_bin("regionkey").unwrap()
-    }
-
-    fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-        let p = dir.join(name);
-        std::fs::write(&p, text).unwrap();
-        p
-    }
-
-    type Row = BTreeMap<String, String>;
-
-    fn read_rows(path: &Path) -> Vec<Row> {
-        let mut r = csv::Reader::from_path(path).unwrap();
-        let headers = r.headers().unwrap().clone();
-        r.records()
-            .map(|rec| {
-                headers
-                    .iter()
-                    .zip(rec.unwrap().iter())
-                    .map(|(h, v)| (h.to_string(), v.to_string()))
-                    .collect()
-            })
-            .collect()
-    }
-
-    fn find<'a>(rows: &'a [Row], code: &str, year: &str) -> &'a Row {
-        rows.iter()
-            .find(|r| r["code"] == code && r["year"] == year)
-            .unwrap_or_else(|| panic!("no row {code} {year} in {rows:?}"))
-    }
-
-    fn num(row: &Row, col: &str) -> f64 {
-        row[col]
-            .parse()
-            .unwrap_or_else(|_| panic!("{col} = {:?} in {row:?}", row[col]))
-    }
+    use crate::common::{find, num, read_rows, regionkey, write, Row};
 
     fn apply(dir: &Path, data: &Path, extra: &[&str]) -> (Vec<Row>, Vec<Row>) {
         let out = dir.join("out.csv");
@@ -360,7 +297,7 @@ mod applying {
         let land = [42.1, 69.4, 22.7, 108.5, 57.5];
         let mut total = 0.0;
         for (code, land) in members.iter().zip(land) {
-            let r = find(&rows, code, "2020");
+            let r = find(&rows, code, Some("2020"));
             let share = num(r, "cases") / 1000.0;
             assert!((share - land / 300.2).abs() < 0.05, "{code}: {share}");
             total += num(r, "cases");
@@ -405,8 +342,8 @@ mod applying {
         );
         // Bristol Bay: 46 · 844 / 2320 = 16.7327586...; Lake and Peninsula:
         // 46 · 1476 / 2320 = 29.2672413...
-        let bb = find(&rows, "02060", "2021");
-        let lp = find(&rows, "02164", "2021");
+        let bb = find(&rows, "02060", Some("2021"));
+        let lp = find(&rows, "02164", Some("2021"));
         assert!((num(bb, "cases") - 46.0 * 844.0 / 2320.0).abs() < 1e-9);
         assert!((num(lp, "cases") - 46.0 * 1476.0 / 2320.0).abs() < 1e-9);
         assert_eq!(bb["pooled_from"], "02060+02164 by population");
@@ -441,18 +378,18 @@ mod applying {
         );
         // 2021, pooled: Brown 40 · 9508 / 19781 = 19.226530; Nemaha
         // 40 · 10273 / 19781 = 20.773470; both covered, from the pooled report.
-        let brown = find(&rows, "20013", "2021");
-        let nemaha = find(&rows, "20131", "2021");
+        let brown = find(&rows, "20013", Some("2021"));
+        let nemaha = find(&rows, "20131", Some("2021"));
         assert!((num(brown, "cases") - 19.226530).abs() < 1e-6);
         assert!((num(nemaha, "cases") - 20.773470).abs() < 1e-6);
         assert_eq!(num(nemaha, "cases_coverage"), 1.0);
         assert_eq!(nemaha["pooled_from"], "20013+20131 by population");
         // 2022, by member: Brown 12 (its own row, not pooled); Nemaha has
         // no row: no figure, coverage 0 (missing is not zero).
-        let brown = find(&rows, "20013", "2022");
+        let brown = find(&rows, "20013", Some("2022"));
         assert_eq!(num(brown, "cases"), 12.0);
         assert_eq!(brown["pooled_from"], "");
-        let nemaha = find(&rows, "20131", "2022");
+        let nemaha = find(&rows, "20131", Some("2022"));
         assert_eq!(nemaha["cases"], "");
         assert_eq!(num(nemaha, "cases_coverage"), 0.0);
         // Nemaha is absent in 2022 only: 2021 came from the pooled report.
@@ -491,12 +428,12 @@ mod applying {
         assert_eq!(left["code"], "51059+51610");
         assert_eq!(left["rows"], "1");
         // Fairfax County is written without a figure: no data reached it.
-        let fairfax = find(&rows, "51059", "2020");
+        let fairfax = find(&rows, "51059", Some("2020"));
         assert_eq!(fairfax["cases"], "");
         assert_eq!(num(fairfax, "cases_coverage"), 0.0);
         // Dukes and Nantucket: 7 split by area, plus Nantucket's own 2.
-        let dukes = num(find(&rows, "25007", "2020"), "cases");
-        let nantucket = num(find(&rows, "25019", "2020"), "cases");
+        let dukes = num(find(&rows, "25007", Some("2020")), "cases");
+        let nantucket = num(find(&rows, "25019", Some("2020")), "cases");
         assert!((dukes + nantucket - 9.0).abs() < 1e-9);
     }
 }

@@ -4,66 +4,12 @@
 //! (from memory; the checks are on the arithmetic, not on the counts), and
 //! the case figures are made up for the arithmetic.
 
-use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-fn regionkey() -> Command {
-    Command::cargo_bin("regionkey").unwrap()
-}
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-type Row = BTreeMap<String, String>;
-
-fn read_rows(path: &Path) -> Vec<Row> {
-    let mut r = csv::Reader::from_path(path).unwrap();
-    let headers = r.headers().unwrap().clone();
-    r.records()
-        .map(|rec| {
-            headers
-                .iter()
-                .zip(rec.unwrap().iter())
-                .map(|(h, v)| (h.to_string(), v.to_string()))
-                .collect()
-        })
-        .collect()
-}
-
-fn find<'a>(rows: &'a [Row], code: &str, period: Option<&str>) -> &'a Row {
-    rows.iter()
-        // apply keeps the data's names for the code and period columns.
-        .find(|r| {
-            ["code", "fips", "district"]
-                .iter()
-                .find_map(|c| r.get(*c))
-                .map(String::as_str)
-                == Some(code)
-                && period.is_none_or(|p| {
-                    r.get("period")
-                        .or_else(|| r.get("year"))
-                        .map(String::as_str)
-                        == Some(p)
-                })
-        })
-        .unwrap_or_else(|| panic!("no row for {code} {period:?} in {rows:?}"))
-}
-
-fn num(row: &Row, col: &str) -> f64 {
-    row[col]
-        .parse()
-        .unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
-}
-
-fn close(a: f64, b: f64, tol: f64) -> bool {
-    (a - b).abs() <= tol
-}
+mod common;
+use common::{close, find, num, read_rows, regionkey, write};
 
 /// A district of two Kansas counties (Brown 20013, Nemaha 20131) and one
 /// of a single county (Jackson 20085), weighted by population.

@@ -4,7 +4,8 @@
 //! 1970-Present" (the change table's rows cite it; several from memory, as
 //! marked there).
 
-use assert_cmd::Command;
+mod common;
+use common::regionkey;
 use regionkey::core::history::{carry, lineage, Carried};
 use regionkey::io::builtin::us_counties;
 
@@ -110,11 +111,7 @@ fn lineage_tells_names_and_changes_in_year_order() {
 
 #[test]
 fn history_command_prints_a_units_story_by_code_or_name() {
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
-        .args(["history", "46113"])
-        .output()
-        .unwrap();
+    let out = regionkey().args(["history", "46113"]).output().unwrap();
     assert!(
         out.status.success(),
         "{}",
@@ -124,8 +121,7 @@ fn history_command_prints_a_units_story_by_code_or_name() {
     assert!(text.contains("Shannon County"), "{text}");
     assert!(text.contains("Oglala Lakota"), "{text}");
 
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args(["history", "Valdez-Cordova", "--format", "csv"])
         .output()
         .unwrap();
@@ -141,11 +137,7 @@ fn history_command_prints_a_units_story_by_code_or_name() {
 
 #[test]
 fn history_of_an_unknown_name_says_so() {
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
-        .args(["history", "Atlantis"])
-        .output()
-        .unwrap();
+    let out = regionkey().args(["history", "Atlantis"]).output().unwrap();
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("Atlantis"));
 }
@@ -160,11 +152,7 @@ fn names_are_read_as_the_matcher_reads_them() {
         ("Saint Louis City", "29510"),
         ("6037.0", "06037"),
     ] {
-        let out = Command::cargo_bin("regionkey")
-            .unwrap()
-            .args(["history", query])
-            .output()
-            .unwrap();
+        let out = regionkey().args(["history", query]).output().unwrap();
         assert!(
             out.status.success(),
             "{query}: {}",

@@ -7,15 +7,8 @@
 
 use std::collections::BTreeSet;
 
-use assert_cmd::Command;
-
-fn atlas_2023_ids() -> BTreeSet<String> {
-    let text = std::fs::read_to_string("fixtures/reference/atlas-2023-ids.csv").unwrap();
-    text.lines()
-        .skip(1)
-        .map(|l| l.split(',').next().unwrap().to_string())
-        .collect()
-}
+mod common;
+use common::{atlas_2023_ids, regionkey};
 
 fn unemployment_codes() -> BTreeSet<String> {
     let text = std::fs::read_to_string("fixtures/apply/unemployment.tsv").unwrap();
@@ -35,8 +28,7 @@ fn the_map_counts_joined_and_missing_units_as_the_files_say() {
 
     let dir = tempfile::tempdir().unwrap();
     let svg = dir.path().join("map.svg");
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args([
             "map",
             "fixtures/apply/unemployment.tsv",
@@ -74,8 +66,7 @@ fn the_map_counts_joined_and_missing_units_as_the_files_say() {
 }
 
 fn run_map(args: &[&str], data: &std::path::Path, svg: &std::path::Path) -> (String, String) {
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .arg("map")
         .arg(data)
         .args(args)
@@ -259,8 +250,7 @@ fn a_value_map_with_given_breaks_counts_each_class_and_draws_missing_as_missing(
     }
     let svg = dir.path().join("rates.svg");
     let png = dir.path().join("rates.png");
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .arg("map")
         .arg(&data)
         .args([
@@ -342,8 +332,7 @@ fn estimates_below_the_coverage_threshold_are_marked_and_a_value_map_needs_one_p
         "{summary}"
     );
     // Two years and no --period: refused with a way out.
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .arg("map")
         .arg(&data)
         .args(["--value-column", "v", "--period-column", "year", "--output"])
@@ -359,8 +348,7 @@ fn a_coverage_that_is_not_a_number_names_line_and_column() {
     let dir = tempfile::tempdir().unwrap();
     let data = dir.path().join("d.csv");
     std::fs::write(&data, "code,cov\n01001,1\n01003,most\n").unwrap();
-    let out = Command::cargo_bin("regionkey")
-        .unwrap()
+    let out = regionkey()
         .args(["map"])
         .arg(&data)
         .args(["--coverage-column", "cov", "--output"])

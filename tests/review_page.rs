@@ -19,16 +19,14 @@ use std::path::{Path, PathBuf};
 use std::process::{Child, Command as Process, Stdio};
 use std::time::{Duration, Instant};
 
-use assert_cmd::Command;
 use serde_json::{json, Value};
+
+mod common;
+use common::regionkey;
 
 const CHROMIUM: &str = "/usr/bin/chromium";
 const CHROMEDRIVER: &str = "/usr/bin/chromedriver";
 const ELEMENT: &str = "element-6066-11e4-a52e-4f735466cecf";
-
-fn regionkey() -> Command {
-    Command::cargo_bin("regionkey").unwrap()
-}
 
 /// The demo's outputs in a fresh folder.
 fn demo() -> (tempfile::TempDir, PathBuf) {

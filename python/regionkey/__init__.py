@@ -159,6 +159,7 @@ def match(
     decisions: Any = None,
     level: Optional[str] = None,
     reference: Optional[PathLike] = None,
+    composites: Optional[PathLike] = None,
 ) -> Tuple[Any, Any]:
     """Match free-text place names to FIPS codes, as ``regionkey match`` does.
 
@@ -174,8 +175,14 @@ def match(
     ``vintage`` picks the year whose units are matched (default: the latest,
     2023); ``vintage_column`` takes each row's year instead. ``level`` is
     ``"county"`` (default) or ``"state"``; ``reference`` is a CSV of your own
-    units (``code,name``; optional ``parent``, ``description``,
-    ``valid_from``, ``valid_to``).
+    units (``code,name``; optional ``parent``, ``parent_name``,
+    ``description``, ``valid_from``, ``valid_to``); ``composites`` a CSV of
+    units reported together (as ``--composites``).
+
+    The columns are checked as the command checks them: a state column
+    whose values are not states (years, say), or a name column of numbers
+    that are no codes, raise :class:`RegionkeyError` naming the column, the
+    row (as a line, the header being line 1) and a value.
 
     >>> import polars as pl, regionkey
     >>> df = pl.DataFrame({"name": ["Baltimore", "Fairfax city", "Statewide"],
@@ -217,8 +224,11 @@ def match(
             vintage,
             level,
             os.fspath(reference) if reference is not None else None,
+            os.fspath(composites) if composites is not None else None,
             _decisions_path(decisions, workdir),
             "the DataFrame",
+            name_column,
+            state_column,
             vintage_column,
         )
     finally:

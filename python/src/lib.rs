@@ -22,14 +22,14 @@ use pyo3::prelude::*;
 use pyo3::types::{PyBytes, PyCFunction, PyDict, PyTuple};
 use rayon::prelude::*;
 
+use regionkey::cli::match_names::{prepare, LevelArg};
 use regionkey::core::decisions::Decisions;
 use regionkey::core::fips::CountyFips;
 use regionkey::core::history::lineage;
-use regionkey::core::match_table::{added_fields, match_rows, ReviewItem, Settings};
-use regionkey::core::matcher::{CodeForm, Matcher, Status};
-use regionkey::core::reference::Reference;
+use regionkey::core::match_table::{self, added_fields, Columns, KeyColumn, ReviewItem};
+use regionkey::core::matcher::Status;
 use regionkey::error::{Error, Location};
-use regionkey::io::builtin::{read_reference_file, us_counties, us_states};
+use regionkey::io::builtin::{us_counties, us_states};
 use regionkey::io::output::fixed;
 use regionkey::io::review::{read_decisions, REVIEW_CANDIDATES};
 
@@ -93,49 +93,6 @@ impl Column {
     }
 }
 
-/// Where the units come from.
-enum Source {
-    Builtin(&'static Reference),
-    File(Reference),
-}
-
-impl Source {
-    fn get(&self) -> &Reference {
-        match self {
-            Source::Builtin(r) => r,
-            Source::File(r) => r,
-        }
-    }
-}
-
-/// The latest vintage the built-in references describe (reference/README.md).
-const BUILTIN_LATEST_VINTAGE: u16 = 2023;
-
-/// The year of a row's vintage value, as `regionkey match --vintage-column`
-/// reads it: the first four digits ("2015", "2015.0", "2015-06-30"), no
-/// earlier than the reference's first vintage.
-fn row_year(text: &str, span: (u16, u16), location: Location) -> Result<u16, Error> {
-    let text = text.trim();
-    let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
-    let year = (digits.len() == 4)
-        .then(|| digits.parse::<u16>().ok())
-        .flatten();
-    match year {
-        Some(y) if y >= span.0 => Ok(y),
-        Some(y) => Err(Error::input(
-            location,
-            format!(
-                "year {y} is before the reference's first vintage ({})",
-                span.0
-            ),
-        )),
-        None => Err(Error::input(
-            location,
-            format!("{text:?} is not a year (--vintage-column wants a four-digit year per row)"),
-        )),
-    }
-}
-
 /// What `match_columns` hands back before it becomes Python objects.
 struct Result7 {
     row_of: Vec<u32>,
@@ -144,57 +101,10 @@ struct Result7 {
     summary: BTreeMap<String, u64>,
 }
 
-/// The reference, code form, default vintage and span, checked as
-/// `regionkey match` checks its options.
-fn source_of(
-    level: Option<&str>,
-    reference: Option<&PathBuf>,
-    vintage: Option<u16>,
-    has_states: bool,
-) -> Result<(Source, Settings), Error> {
-    let (source, codes) = match (reference, level) {
-        (Some(_), Some(_)) => {
-            return Err(Error::Usage(
-                "--level chooses a built-in reference; it cannot be combined with --reference"
-                    .into(),
-            ))
-        }
-        (Some(path), None) => (Source::File(read_reference_file(path)?), CodeForm::Plain),
-        (None, Some("state")) => (Source::Builtin(us_states()?), CodeForm::State),
-        (None, None) | (None, Some("county")) => {
-            (Source::Builtin(us_counties()?), CodeForm::County)
-        }
-        (None, Some(other)) => {
-            return Err(Error::Usage(format!(
-                "level {other:?}: choose \"county\" or \"state\""
-            )))
-        }
-    };
-    if codes == CodeForm::State && has_states {
-        return Err(Error::Usage(
-            "--state-column has no meaning with --level state: the names are the states".into(),
-        ));
-    }
-    let r = source.get();
-    let latest = match source {
-        Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
-        Source::File(_) => r.latest_year().unwrap_or(0),
-    };
-    let vintage = vintage.unwrap_or(latest);
-    let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
-    if codes == CodeForm::County && (vintage < first || vintage > latest) {
-        return Err(Error::Usage(format!(
-            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
-        )));
-    }
-    let settings = Settings {
-        codes,
-        vintage,
-        span: (first, latest),
-    };
-    Ok((source, settings))
-}
-
+/// Matches the columns as `regionkey match` does: the same checks of the
+/// options and columns, the same matching (the library's
+/// `match_names::prepare` and `match_table::match_columns`). Rows are named
+/// in messages as lines of `source_label` (the header is line 1).
 #[allow(clippy::too_many_arguments)]
 fn match_table(
     names: &Column,
@@ -203,48 +113,58 @@ fn match_table(
     vintage: Option<u16>,
     level: Option<&str>,
     reference: Option<PathBuf>,
+    composites: Option<PathBuf>,
     decisions: Option<PathBuf>,
     source_label: &str,
-    vintage_column: Option<&str>,
+    column_names: [&str; 3],
 ) -> Result<Result7, Error> {
-    let (source, settings) = source_of(level, reference.as_ref(), vintage, states.is_some())?;
-    let r = source.get();
+    let level = match level {
+        None => None,
+        Some("county") => Some(LevelArg::County),
+        Some("state") => Some(LevelArg::State),
+        Some(other) => {
+            return Err(Error::Usage(format!(
+                "level {other:?}: choose \"county\" or \"state\""
+            )))
+        }
+    };
+    let (source, settings) = prepare(
+        level,
+        reference.as_deref(),
+        composites.as_deref(),
+        vintage,
+        states.is_some(),
+    )?;
     let decisions = match &decisions {
         Some(path) => read_decisions(path)?,
         None => Decisions::default(),
     };
-    if states.is_some() && !Matcher::new(r, settings.vintage, settings.codes).has_parents() {
-        return Err(Error::Usage(format!(
-            "--state-column: the reference {} has no parent units to read a state against",
-            r.label
-        )));
+    fn texts(c: &Column) -> Vec<&str> {
+        (0..c.len).map(|i| c.get(i)).collect()
     }
-    let n = names.len;
-    let years: Option<Vec<u16>> = match years {
-        None => None,
-        Some(c) => Some(
-            (0..n)
-                .map(|i| {
-                    row_year(
-                        c.get(i),
-                        settings.span,
-                        Location::file(source_label)
-                            .at_line(i as u64 + 2)
-                            .in_column(vintage_column.unwrap_or("vintage")),
-                    )
-                })
-                .collect::<Result<_, Error>>()?,
-        ),
+    let name_texts = texts(names);
+    let state_texts = states.map(texts);
+    let year_texts = years.map(texts);
+    let at = |row: usize, key: KeyColumn| {
+        let column = match key {
+            KeyColumn::Name => column_names[0],
+            KeyColumn::State => column_names[1],
+            KeyColumn::Year => column_names[2],
+        };
+        Location::file(source_label)
+            .at_line(row as u64 + 2)
+            .in_column(column)
     };
-    let name_texts: Vec<&str> = (0..n).map(|i| names.get(i)).collect();
-    let state_texts: Option<Vec<&str>> = states.map(|c| (0..n).map(|i| c.get(i)).collect());
-    let matched = match_rows(
-        r,
+    let matched = match_table::match_columns(
+        source.get(),
         settings,
-        &name_texts,
-        state_texts.as_deref(),
-        years.as_deref(),
+        Columns {
+            names: &name_texts,
+            states: state_texts.as_deref(),
+            years: year_texts.as_deref(),
+        },
         &decisions,
+        &at,
         &|_| {},
     )?;
     let fields: Vec<[String; 7]> = matched
@@ -280,10 +200,10 @@ fn arg<'py, T: FromPyObjectOwned<'py>>(args: &Bound<'py, PyTuple>, i: usize) -> 
 }
 
 /// `match_columns(names, states, years, vintage, level, reference,
-/// decisions, source_label, vintage_column)`: matches name
-/// columns; returns a dict with the row ids (little-endian u32 bytes), the
-/// seven added fields of each distinct name (as columns), the review table
-/// (as columns) and summary counts.
+/// composites, decisions, source_label, name_column, state_column,
+/// vintage_column)`: matches name columns; returns a dict with the row ids
+/// (little-endian u32 bytes), the seven added fields of each distinct name
+/// (as columns), the review table (as columns) and summary counts.
 fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>> {
     let py = args.py();
     let column = |i: usize, what: &str| -> PyResult<Option<Column>> {
@@ -301,9 +221,12 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
     let vintage: Option<u16> = arg(args, 3)?;
     let level: Option<String> = arg(args, 4)?;
     let reference: Option<PathBuf> = arg(args, 5)?;
-    let decisions: Option<PathBuf> = arg(args, 6)?;
-    let label: String = arg(args, 7)?;
-    let vintage_column: Option<String> = arg(args, 8)?;
+    let composites: Option<PathBuf> = arg(args, 6)?;
+    let decisions: Option<PathBuf> = arg(args, 7)?;
+    let label: String = arg(args, 8)?;
+    let name_column: String = arg(args, 9)?;
+    let state_column: Option<String> = arg(args, 10)?;
+    let vintage_column: Option<String> = arg(args, 11)?;
     if states.as_ref().is_some_and(|s| s.len != names.len)
         || years.as_ref().is_some_and(|s| s.len != names.len)
     {
@@ -320,9 +243,14 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
                 vintage,
                 level.as_deref(),
                 reference,
+                composites,
                 decisions,
                 &label,
-                vintage_column.as_deref(),
+                [
+                    &name_column,
+                    state_column.as_deref().unwrap_or(""),
+                    vintage_column.as_deref().unwrap_or(""),
+                ],
             )
         })
         .map_err(py_err)?;

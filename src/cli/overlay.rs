@@ -381,10 +381,15 @@ pub struct Report {
 /// sidecar last).
 pub fn execute(config: &Config) -> Result<Report> {
     let mut warnings = Vec::new();
-    // One layer after the other: a parsed JSON document takes several times
-    // the memory of its polygons, so only one is held at a time.
-    let (from_prep, from, from_warnings) = read_prepared(&config.from, config.repeated)?;
-    let (to_prep, to, to_warnings) = read_prepared(&config.to, config.repeated)?;
+    // Both layers at once (a TopoJSON's arcs are read straight into
+    // numbers, so a document costs little more than its polygons); when
+    // both fail, the source layer's error is the one shown.
+    let (from_read, to_read) = rayon::join(
+        || read_prepared(&config.from, config.repeated),
+        || read_prepared(&config.to, config.repeated),
+    );
+    let (from_prep, from, from_warnings) = from_read?;
+    let (to_prep, to, to_warnings) = to_read?;
     warnings.extend(from_warnings);
     warnings.extend(to_warnings);
     let (weighting, population_sha256) = match &config.population {

@@ -164,11 +164,13 @@ fn orient_ring(ls: LineString<f64>, want_ccw: bool) -> LineString<f64> {
 }
 
 /// Makes a valid multipolygon from raw polygons, recording problems.
+/// Returns it, the area of the rings as read, and whether a repair (a
+/// union) changed the rings.
 fn repair_feature(
     polygons: &[Vec<Ring>],
     convention: RingConvention,
     problems: &mut Vec<String>,
-) -> (MultiPolygon<f64>, f64) {
+) -> (MultiPolygon<f64>, f64, bool) {
     let mut parts = Vec::with_capacity(polygons.len());
     let mut raw_area = 0.0;
     let many = polygons.len() > 1;
@@ -212,19 +214,19 @@ fn repair_feature(
     }
     let mp = MultiPolygon::new(parts);
     if mp.0.is_empty() {
-        return (mp, raw_area);
+        return (mp, raw_area, false);
     }
     let mut messages = validity::problems(&mp);
     messages.truncate(3);
     if messages.is_empty() {
-        return (mp, raw_area);
+        return (mp, raw_area, false);
     }
     problems.push(format!(
         "invalid ({}); repaired by a non-zero union of its rings",
         messages.join("; ")
     ));
     let repaired = boolean::union_non_zero(&mp);
-    (repaired, raw_area)
+    (repaired, raw_area, true)
 }
 
 /// Turns raw features into units: repairs each (see the module notes) and
@@ -232,12 +234,17 @@ fn repair_feature(
 /// feature that collapses is in `repairs` with `collapsed` set and its unit
 /// (if it has no other features) has zero area.
 pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedLayer {
-    let done: Vec<(MultiPolygon<f64>, Repair)> = features
+    let done: Vec<(MultiPolygon<f64>, Repair, f64)> = features
         .par_iter()
         .map(|f| {
             let mut problems = Vec::new();
-            let (mp, raw_area) = repair_feature(&f.polygons, convention, &mut problems);
-            let area = WGS84.multi_polygon_area(&mp);
+            let (mp, raw_area, repaired) = repair_feature(&f.polygons, convention, &mut problems);
+            // The rings as read are the geometry unless a repair ran.
+            let area = if repaired {
+                WGS84.multi_polygon_area(&mp)
+            } else {
+                raw_area
+            };
             let collapsed = mp.0.is_empty() || area <= 0.0;
             if collapsed && !problems.iter().any(|p| p.contains("nothing is left")) {
                 problems.push("nothing is left of the feature; it gets no crosswalk rows".into());
@@ -254,21 +261,29 @@ pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedL
                 area_change,
                 collapsed,
             };
-            (mp, repair)
+            (mp, repair, area)
         })
         .collect();
     let mut by_key: BTreeMap<&str, Vec<usize>> = BTreeMap::new();
     for (i, f) in features.iter().enumerate() {
         by_key.entry(f.key.as_str()).or_default().push(i);
     }
-    let mut repairs: Vec<Repair> = done.iter().map(|(_, r)| r.clone()).collect();
+    let mut geometries = Vec::with_capacity(done.len());
+    let mut repairs = Vec::with_capacity(done.len());
+    let mut areas = Vec::with_capacity(done.len());
+    for (mp, r, a) in done {
+        geometries.push(Some(mp));
+        repairs.push(r);
+        areas.push(a);
+    }
     let mut units = Vec::with_capacity(by_key.len());
     for (key, idx) in by_key {
         let mut polys: Vec<Polygon<f64>> = Vec::new();
         for &i in &idx {
-            polys.extend(done[i].0 .0.iter().cloned());
+            polys.extend(geometries[i].take().into_iter().flat_map(|g| g.0));
         }
         let mut geometry = MultiPolygon::new(polys);
+        let mut area = areas[idx[0]];
         if idx.len() > 1 {
             let numbers: Vec<String> = idx
                 .iter()
@@ -278,6 +293,7 @@ pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedL
             if joined {
                 geometry = boolean::union_non_zero(&geometry);
             }
+            area = WGS84.multi_polygon_area(&geometry);
             for &i in &idx {
                 repairs[i].problems.push(format!(
                     "code {key} is shared by features {}; taken together as one unit{}",
@@ -290,7 +306,6 @@ pub fn prepare(features: &[RawFeature], convention: RingConvention) -> PreparedL
                 ));
             }
         }
-        let area = WGS84.multi_polygon_area(&geometry);
         units.push(Unit {
             key: key.to_string(),
             features: idx.iter().map(|&i| features[i].number).collect(),

@@ -47,7 +47,8 @@ fn ring_name(ring: usize) -> String {
 struct Grid {
     x0: f64,
     y0: f64,
-    cell: f64,
+    /// Cells per unit of length (the inverse of the cell size).
+    per_cell: f64,
     cols: usize,
     rows: usize,
     start: Vec<u32>,
@@ -81,7 +82,7 @@ impl Grid {
         let mut g = Grid {
             x0,
             y0,
-            cell,
+            per_cell: 1.0 / cell,
             cols,
             rows,
             start: vec![0; cols * rows + 1],
@@ -114,8 +115,11 @@ impl Grid {
     }
 
     fn cell_of(&self, c: Coord<f64>) -> (usize, usize) {
-        let x = (((c.x - self.x0) / self.cell).floor().max(0.0) as usize).min(self.cols - 1);
-        let y = (((c.y - self.y0) / self.cell).floor().max(0.0) as usize).min(self.rows - 1);
+        // `as usize` truncates, which is the floor for the non-negative
+        // offsets here and 0 for anything below; monotonic in the
+        // coordinate, so a segment's cells and a box's corner agree.
+        let x = (((c.x - self.x0) * self.per_cell) as usize).min(self.cols - 1);
+        let y = (((c.y - self.y0) * self.per_cell) as usize).min(self.rows - 1);
         (x, y)
     }
 

@@ -6,7 +6,7 @@ use std::path::Path;
 use geo::Coord;
 use serde_json::Value;
 
-use super::{check_coord, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use super::{check_coord, key_text, lonlat_ok, raw_features, resolve_keys, Layer, LayerRequest};
 use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -128,7 +128,9 @@ fn json_ring(path: &Path, feature: u64, place: &str, v: &Value) -> Result<Ring> 
             ));
         };
         let c = Coord { x, y };
-        check_coord(at(), &format!("{place}, position {}", k + 1), c)?;
+        if !lonlat_ok(c) {
+            check_coord(at(), &format!("{place}, position {}", k + 1), c)?;
+        }
         ring.push(c);
     }
     Ok(ring)

@@ -18,6 +18,7 @@ use crate::core::overlay::{RawFeature, Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
 pub mod geojson;
+pub mod json_doc;
 pub mod population;
 pub mod shapefile;
 pub mod topojson;
@@ -178,10 +179,11 @@ pub fn read_layer(req: &LayerRequest) -> Result<Layer> {
 }
 
 fn read_json(path: &Path, bytes: &[u8], req: &LayerRequest) -> Result<Layer> {
-    let doc: Value = serde_json::from_slice(bytes).map_err(|e| json_error(path, &e))?;
+    let json_doc::Doc { rest: doc, arcs } =
+        json_doc::parse(bytes).map_err(|e| json_error(path, &e))?;
     let sha = sha256_hex(&[bytes]);
     match doc.get("type").and_then(Value::as_str) {
-        Some("Topology") => topojson::read(path, &doc, sha, req),
+        Some("Topology") => topojson::read(path, &doc, arcs.as_ref(), sha, req),
         Some("FeatureCollection") => geojson::read(path, &doc, sha, req),
         other => Err(Error::input(
             Location::file(path),
@@ -246,16 +248,26 @@ pub fn check_lonlat(path: &Path, feature: u64, c: Coord<f64>) -> Result<()> {
     check_coord(Location::file(path).at_feature(feature), "", c)
 }
 
+/// True when a coordinate is a longitude within -180..180 and a latitude
+/// within -90..90 (within [`LONLAT_SLACK`]): the test of [`check_coord`],
+/// for loops that make their message only when it fails.
+pub fn lonlat_ok(c: Coord<f64>) -> bool {
+    c.x.is_finite()
+        && c.x.abs() <= 180.0 + LONLAT_SLACK
+        && c.y.is_finite()
+        && c.y.abs() <= 90.0 + LONLAT_SLACK
+}
+
 /// Checks that a coordinate is a longitude within -180..180 and a latitude
 /// within -90..90 (within [`LONLAT_SLACK`]). The error names the location,
 /// `detail` (which ring and vertex, say; may be empty) and the coordinate;
 /// a layer in metres or feet is told to reproject.
 pub fn check_coord(location: Location, detail: &str, c: Coord<f64>) -> Result<()> {
-    let lon_ok = c.x.is_finite() && c.x.abs() <= 180.0 + LONLAT_SLACK;
-    let lat_ok = c.y.is_finite() && c.y.abs() <= 90.0 + LONLAT_SLACK;
-    if lon_ok && lat_ok {
+    if lonlat_ok(c) {
         return Ok(());
     }
+    let lon_ok = c.x.is_finite() && c.x.abs() <= 180.0 + LONLAT_SLACK;
+    let lat_ok = c.y.is_finite() && c.y.abs() <= 90.0 + LONLAT_SLACK;
     let what = match (lon_ok, lat_ok) {
         (false, true) => "its longitude is outside -180..180".to_string(),
         (true, false) => "its latitude is outside -90..90".to_string(),

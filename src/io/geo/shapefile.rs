@@ -17,7 +17,7 @@ use std::path::{Path, PathBuf};
 
 use geo::Coord;
 
-use super::{check_coord, resolve_keys, Layer, LayerRequest};
+use super::{check_coord, lonlat_ok, resolve_keys, Layer, LayerRequest};
 use crate::core::overlay::{RawFeature, Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -474,11 +474,13 @@ fn shape_rings(
                 x: le_f64(c, base + 16 * p),
                 y: le_f64(c, base + 16 * p + 8),
             };
-            check_coord(
-                Location::file(path).at_feature(number),
-                &format!("ring {}, vertex {}", k + 1, v + 1),
-                c,
-            )?;
+            if !lonlat_ok(c) {
+                check_coord(
+                    Location::file(path).at_feature(number),
+                    &format!("ring {}, vertex {}", k + 1, v + 1),
+                    c,
+                )?;
+            }
             ring.push(c);
         }
         rings.push((is_clockwise(&ring), ring));

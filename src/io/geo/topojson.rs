@@ -7,7 +7,8 @@ use std::path::Path;
 use geo::Coord;
 use serde_json::Value;
 
-use super::{check_coord, key_text, raw_features, resolve_keys, Layer, LayerRequest};
+use super::json_doc::{ArcProblem, Arcs};
+use super::{check_coord, key_text, lonlat_ok, raw_features, resolve_keys, Layer, LayerRequest};
 use crate::core::overlay::{Ring, RingConvention};
 use crate::error::{Error, Location, Result};
 
@@ -22,13 +23,26 @@ fn has_polygons(obj: &Value) -> bool {
     }
 }
 
-/// Reads one object of a parsed Topology. A panic inside (a bug) is turned
-/// into an error naming the file as a last guard.
-pub fn read(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
-    super::guarded(path, || read_unguarded(path, doc, sha256, req))
+/// Reads one object of a parsed Topology (`doc` without its arcs, `arcs` as
+/// read by [`super::json_doc`]). A panic inside (a bug) is turned into an
+/// error naming the file as a last guard.
+pub fn read(
+    path: &Path,
+    doc: &Value,
+    arcs: Option<&Arcs>,
+    sha256: String,
+    req: &LayerRequest,
+) -> Result<Layer> {
+    super::guarded(path, || read_unguarded(path, doc, arcs, sha256, req))
 }
 
-fn read_unguarded(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) -> Result<Layer> {
+fn read_unguarded(
+    path: &Path,
+    doc: &Value,
+    arcs: Option<&Arcs>,
+    sha256: String,
+    req: &LayerRequest,
+) -> Result<Layer> {
     let objects = doc
         .get("objects")
         .and_then(Value::as_object)
@@ -73,7 +87,7 @@ fn read_unguarded(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) 
             }
         },
     };
-    let arcs = decode_arcs(path, doc)?;
+    let arcs = decode_arcs(path, doc, arcs)?;
     let obj = &objects[&name];
     let geometries: Vec<&Value> = match obj.get("type").and_then(Value::as_str) {
         Some("GeometryCollection") => obj
@@ -123,8 +137,26 @@ fn read_unguarded(path: &Path, doc: &Value, sha256: String, req: &LayerRequest) 
     })
 }
 
+/// All arcs in longitude/latitude, one after another.
+struct Decoded {
+    coords: Vec<Coord<f64>>,
+    /// Where each arc starts in `coords`; one more entry holds the end.
+    starts: Vec<usize>,
+}
+
+impl Decoded {
+    fn get(&self, k: usize) -> Option<&[Coord<f64>]> {
+        let (&a, &b) = (self.starts.get(k)?, self.starts.get(k + 1)?);
+        Some(&self.coords[a..b])
+    }
+
+    fn len(&self) -> usize {
+        self.starts.len().saturating_sub(1)
+    }
+}
+
 /// Decodes all arcs to longitude/latitude.
-fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
+fn decode_arcs(path: &Path, doc: &Value, arcs: Option<&Arcs>) -> Result<Decoded> {
     let bad =
         |what: &str| Error::input(Location::file(path), format!("malformed TopoJSON: {what}"));
     let transform = match doc.get("transform") {
@@ -148,61 +180,47 @@ fn decode_arcs(path: &Path, doc: &Value) -> Result<Vec<Vec<Coord<f64>>>> {
             Some((pair("scale")?, pair("translate")?))
         }
     };
-    let arcs = doc
-        .get("arcs")
-        .and_then(Value::as_array)
-        .ok_or_else(|| bad("no \"arcs\" list"))?;
-    let mut out = Vec::with_capacity(arcs.len());
-    for (i, arc) in arcs.iter().enumerate() {
-        let pts = arc.as_array().ok_or_else(|| {
-            Error::input(
+    let arcs = arcs.ok_or_else(|| bad("no \"arcs\" list"))?;
+    match &arcs.problem {
+        None => {}
+        Some(ArcProblem::NotAList) => return Err(bad("no \"arcs\" list")),
+        Some(ArcProblem::ArcNotAList(i)) => {
+            return Err(Error::input(
                 Location::file(path).in_column("arcs"),
                 format!("arc {i} is not a list of positions"),
-            )
-        })?;
-        let mut v = Vec::with_capacity(pts.len());
+            ))
+        }
+        Some(ArcProblem::NotAPair(i, k, what)) => {
+            return Err(Error::input(
+                Location::file(path).in_column("arcs"),
+                format!("arc {i}, position {k} is not a pair of numbers (it is {what})"),
+            ))
+        }
+    }
+    let mut coords = Vec::with_capacity(arcs.points.len());
+    for k in 0..arcs.len() {
         let (mut x, mut y) = (0.0f64, 0.0f64);
-        for (k, p) in pts.iter().enumerate() {
-            let pair = p.as_array().and_then(|p| {
-                Some((
-                    p.first().and_then(Value::as_f64)?,
-                    p.get(1).and_then(Value::as_f64)?,
-                ))
-            });
-            let Some((a, b)) = pair else {
-                return Err(Error::input(
-                    Location::file(path).in_column("arcs"),
-                    format!(
-                        "arc {i}, position {}: {} is not a pair of numbers",
-                        k + 1,
-                        short(p)
-                    ),
-                ));
-            };
+        for &[a, b] in arcs.arc(k) {
             match transform {
                 Some(((sx, sy), (tx, ty))) => {
                     x += a;
                     y += b;
-                    v.push(Coord {
+                    coords.push(Coord {
                         x: x * sx + tx,
                         y: y * sy + ty,
                     });
                 }
-                None => v.push(Coord { x: a, y: b }),
+                None => coords.push(Coord { x: a, y: b }),
             }
         }
-        out.push(v);
     }
-    Ok(out)
+    Ok(Decoded {
+        coords,
+        starts: arcs.starts.clone(),
+    })
 }
 
-fn ring_from_arcs(
-    path: &Path,
-    n: u64,
-    place: &str,
-    idx: &Value,
-    arcs: &[Vec<Coord<f64>>],
-) -> Result<Ring> {
+fn ring_from_arcs(path: &Path, n: u64, place: &str, idx: &Value, arcs: &Decoded) -> Result<Ring> {
     let at = || Location::file(path).at_feature(n).in_column("arcs");
     let bad = |what: String| Error::input(at(), format!("{place}: {what}"));
     let list = idx
@@ -227,11 +245,12 @@ fn ring_from_arcs(
                     arcs.len()
                 ))
             })?;
-        for (p, &c) in arc.iter().enumerate() {
+        // The message is made only for a coordinate that fails.
+        if let Some(p) = arc.iter().position(|&c| !lonlat_ok(c)) {
             check_coord(
                 at(),
                 &format!("{place}, arc {k}, position {}, after the transform", p + 1),
-                c,
+                arc[p],
             )?;
         }
         let skip = usize::from(!ring.is_empty());
@@ -254,12 +273,7 @@ fn short(v: &Value) -> String {
     }
 }
 
-fn geometry_polygons(
-    path: &Path,
-    n: u64,
-    g: &Value,
-    arcs: &[Vec<Coord<f64>>],
-) -> Result<Vec<Vec<Ring>>> {
+fn geometry_polygons(path: &Path, n: u64, g: &Value, arcs: &Decoded) -> Result<Vec<Vec<Ring>>> {
     let at = || Location::file(path).at_feature(n).in_column("arcs");
     let kind = g.get("type").and_then(Value::as_str);
     let a = g.get("arcs").unwrap_or(&Value::Null);
