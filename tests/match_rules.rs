@@ -19,6 +19,8 @@
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::{Path, PathBuf};
 
+use rayon::prelude::*;
+
 use regionkey::core::matcher::{CodeForm, Matcher, Method, Status, MAX_NAME_CHARS};
 use regionkey::core::normalize::{edits, key};
 use regionkey::core::reference::Reference;
@@ -243,48 +245,64 @@ fn sweep(m: &Matcher, reference: &Reference, units: &[SweepUnit], plan: Plan) ->
     } = plan;
     let blocks = blocks(m, reference);
     let mut rng = Rng(0x9E37_79B9_7F4A_7C15);
-    let (mut one, mut two) = (Tally::default(), Tally::default());
     let states: Vec<Option<&str>> = if national { vec![None] } else { vec![] };
+    // The seeded variants are drawn in unit order first, so the sweep is
+    // the same whatever the thread count; the units are then judged in
+    // parallel and the wrong matches printed in unit order.
+    // (unit, its folded name, its seeded two-edit variants)
+    type Work<'a> = (&'a SweepUnit, Vec<u8>, Vec<Vec<u8>>);
+    let mut work: Vec<Work> = Vec::new();
     for u in units.iter().step_by(stride) {
         let name = folded(&u.name);
         if name.is_empty() {
             continue;
-        }
-        let mut asks: Vec<Option<&str>> = states.clone();
-        if u.parent.is_some() || !national {
-            asks.push(u.parent.as_deref());
         }
         let mut seconds: Vec<Vec<u8>> = Vec::new();
         for _ in 0..two_edits {
             let first = random_edit(&mut rng, &name);
             seconds.push(random_edit(&mut rng, &first));
         }
-        for &state in &asks {
-            let block = &blocks[&state.map(String::from)];
-            for v in one_edit_variants(&name).into_iter().step_by(every) {
-                let t = judge(m, block, &v, state);
-                if t.wrong > 0 {
-                    eprintln!(
-                        "wrong: {:?} ({state:?}) from {} {}",
-                        String::from_utf8_lossy(&v),
-                        u.code,
-                        u.name
-                    );
-                }
-                one.add(t);
+        work.push((u, name, seconds));
+    }
+    let done: Vec<(Tally, Tally, Vec<String>)> = work
+        .par_iter()
+        .map(|(u, name, seconds)| {
+            let (mut one, mut two) = (Tally::default(), Tally::default());
+            let mut wrongs = Vec::new();
+            let mut asks: Vec<Option<&str>> = states.clone();
+            if u.parent.is_some() || !national {
+                asks.push(u.parent.as_deref());
             }
-            for v in &seconds {
-                let t = judge(m, block, v, state);
-                if t.wrong > 0 {
-                    eprintln!(
-                        "wrong: {:?} ({state:?}) from {} {}",
-                        String::from_utf8_lossy(v),
-                        u.code,
-                        u.name
-                    );
+            for &state in &asks {
+                let block = &blocks[&state.map(String::from)];
+                let firsts = one_edit_variants(name);
+                let ones = firsts.iter().step_by(every).map(|v| (v, true));
+                for (v, first) in ones.chain(seconds.iter().map(|v| (v, false))) {
+                    let t = judge(m, block, v, state);
+                    if t.wrong > 0 {
+                        wrongs.push(format!(
+                            "wrong: {:?} ({state:?}) from {} {}",
+                            String::from_utf8_lossy(v),
+                            u.code,
+                            u.name
+                        ));
+                    }
+                    if first {
+                        one.add(t);
+                    } else {
+                        two.add(t);
+                    }
                 }
-                two.add(t);
             }
+            (one, two, wrongs)
+        })
+        .collect();
+    let (mut one, mut two) = (Tally::default(), Tally::default());
+    for (o, t, wrongs) in done {
+        one.add(o);
+        two.add(t);
+        for w in wrongs {
+            eprintln!("{w}");
         }
     }
     (one, two)

@@ -22,14 +22,14 @@ use pyo3::prelude::*;
 use pyo3::types::{PyBytes, PyCFunction, PyDict, PyTuple};
 use rayon::prelude::*;
 
+use regionkey::cli::match_names::{prepare, LevelArg};
 use regionkey::core::decisions::Decisions;
 use regionkey::core::fips::CountyFips;
 use regionkey::core::history::lineage;
-use regionkey::core::match_table::{added_fields, match_rows, ReviewItem, Settings};
-use regionkey::core::matcher::{CodeForm, Matcher, Status};
-use regionkey::core::reference::Reference;
+use regionkey::core::match_table::{self, added_fields, Columns, KeyColumn, ReviewItem};
+use regionkey::core::matcher::Status;
 use regionkey::error::{Error, Location};
-use regionkey::io::builtin::{read_reference_file, us_counties, us_states};
+use regionkey::io::builtin::{us_counties, us_states};
 use regionkey::io::output::fixed;
 use regionkey::io::review::{read_decisions, REVIEW_CANDIDATES};
 
@@ -93,49 +93,6 @@ impl Column {
     }
 }
 
-/// Where the units come from.
-enum Source {
-    Builtin(&'static Reference),
-    File(Reference),
-}
-
-impl Source {
-    fn get(&self) -> &Reference {
-        match self {
-            Source::Builtin(r) => r,
-            Source::File(r) => r,
-        }
-    }
-}
-
-/// The latest vintage the built-in references describe (reference/README.md).
-const BUILTIN_LATEST_VINTAGE: u16 = 2023;
-
-/// The year of a row's vintage value, as `regionkey match --vintage-column`
-/// reads it: the first four digits ("2015", "2015.0", "2015-06-30"), no
-/// earlier than the reference's first vintage.
-fn row_year(text: &str, span: (u16, u16), location: Location) -> Result<u16, Error> {
-    let text = text.trim();
-    let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
-    let year = (digits.len() == 4)
-        .then(|| digits.parse::<u16>().ok())
-        .flatten();
-    match year {
-        Some(y) if y >= span.0 => Ok(y),
-        Some(y) => Err(Error::input(
-            location,
-            format!(
-                "year {y} is before the reference's first vintage ({})",
-                span.0
-            ),
-        )),
-        None => Err(Error::input(
-            location,
-            format!("{text:?} is not a year (--vintage-column wants a four-digit year per row)"),
-        )),
-    }
-}
-
 /// What `match_columns` hands back before it becomes Python objects.
 struct Result7 {
     row_of: Vec<u32>,
@@ -144,57 +101,10 @@ struct Result7 {
     summary: BTreeMap<String, u64>,
 }
 
-/// The reference, code form, default vintage and span, checked as
-/// `regionkey match` checks its options.
-fn source_of(
-    level: Option<&str>,
-    reference: Option<&PathBuf>,
-    vintage: Option<u16>,
-    has_states: bool,
-) -> Result<(Source, Settings), Error> {
-    let (source, codes) = match (reference, level) {
-        (Some(_), Some(_)) => {
-            return Err(Error::Usage(
-                "--level chooses a built-in reference; it cannot be combined with --reference"
-                    .into(),
-            ))
-        }
-        (Some(path), None) => (Source::File(read_reference_file(path)?), CodeForm::Plain),
-        (None, Some("state")) => (Source::Builtin(us_states()?), CodeForm::State),
-        (None, None) | (None, Some("county")) => {
-            (Source::Builtin(us_counties()?), CodeForm::County)
-        }
-        (None, Some(other)) => {
-            return Err(Error::Usage(format!(
-                "level {other:?}: choose \"county\" or \"state\""
-            )))
-        }
-    };
-    if codes == CodeForm::State && has_states {
-        return Err(Error::Usage(
-            "--state-column has no meaning with --level state: the names are the states".into(),
-        ));
-    }
-    let r = source.get();
-    let latest = match source {
-        Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
-        Source::File(_) => r.latest_year().unwrap_or(0),
-    };
-    let vintage = vintage.unwrap_or(latest);
-    let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
-    if codes == CodeForm::County && (vintage < first || vintage > latest) {
-        return Err(Error::Usage(format!(
-            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
-        )));
-    }
-    let settings = Settings {
-        codes,
-        vintage,
-        span: (first, latest),
-    };
-    Ok((source, settings))
-}
-
+/// Matches the columns as `regionkey match` does: the same checks of the
+/// options and columns, the same matching (the library's
+/// `match_names::prepare` and `match_table::match_columns`). Rows are named
+/// in messages as lines of `source_label` (the header is line 1).
 #[allow(clippy::too_many_arguments)]
 fn match_table(
     names: &Column,
@@ -203,48 +113,58 @@ fn match_table(
     vintage: Option<u16>,
     level: Option<&str>,
     reference: Option<PathBuf>,
+    composites: Option<PathBuf>,
     decisions: Option<PathBuf>,
     source_label: &str,
-    vintage_column: Option<&str>,
+    column_names: [&str; 3],
 ) -> Result<Result7, Error> {
-    let (source, settings) = source_of(level, reference.as_ref(), vintage, states.is_some())?;
-    let r = source.get();
+    let level = match level {
+        None => None,
+        Some("county") => Some(LevelArg::County),
+        Some("state") => Some(LevelArg::State),
+        Some(other) => {
+            return Err(Error::Usage(format!(
+                "level {other:?}: choose \"county\" or \"state\""
+            )))
+        }
+    };
+    let (source, settings) = prepare(
+        level,
+        reference.as_deref(),
+        composites.as_deref(),
+        vintage,
+        states.is_some(),
+    )?;
     let decisions = match &decisions {
         Some(path) => read_decisions(path)?,
         None => Decisions::default(),
     };
-    if states.is_some() && !Matcher::new(r, settings.vintage, settings.codes).has_parents() {
-        return Err(Error::Usage(format!(
-            "--state-column: the reference {} has no parent units to read a state against",
-            r.label
-        )));
+    fn texts(c: &Column) -> Vec<&str> {
+        (0..c.len).map(|i| c.get(i)).collect()
     }
-    let n = names.len;
-    let years: Option<Vec<u16>> = match years {
-        None => None,
-        Some(c) => Some(
-            (0..n)
-                .map(|i| {
-                    row_year(
-                        c.get(i),
-                        settings.span,
-                        Location::file(source_label)
-                            .at_line(i as u64 + 2)
-                            .in_column(vintage_column.unwrap_or("vintage")),
-                    )
-                })
-                .collect::<Result<_, Error>>()?,
-        ),
+    let name_texts = texts(names);
+    let state_texts = states.map(texts);
+    let year_texts = years.map(texts);
+    let at = |row: usize, key: KeyColumn| {
+        let column = match key {
+            KeyColumn::Name => column_names[0],
+            KeyColumn::State => column_names[1],
+            KeyColumn::Year => column_names[2],
+        };
+        Location::file(source_label)
+            .at_line(row as u64 + 2)
+            .in_column(column)
     };
-    let name_texts: Vec<&str> = (0..n).map(|i| names.get(i)).collect();
-    let state_texts: Option<Vec<&str>> = states.map(|c| (0..n).map(|i| c.get(i)).collect());
-    let matched = match_rows(
-        r,
+    let matched = match_table::match_columns(
+        source.get(),
         settings,
-        &name_texts,
-        state_texts.as_deref(),
-        years.as_deref(),
+        Columns {
+            names: &name_texts,
+            states: state_texts.as_deref(),
+            years: year_texts.as_deref(),
+        },
         &decisions,
+        &at,
         &|_| {},
     )?;
     let fields: Vec<[String; 7]> = matched
@@ -280,10 +200,10 @@ fn arg<'py, T: FromPyObjectOwned<'py>>(args: &Bound<'py, PyTuple>, i: usize) -> 
 }
 
 /// `match_columns(names, states, years, vintage, level, reference,
-/// decisions, source_label, vintage_column)`: matches name
-/// columns; returns a dict with the row ids (little-endian u32 bytes), the
-/// seven added fields of each distinct name (as columns), the review table
-/// (as columns) and summary counts.
+/// composites, decisions, source_label, name_column, state_column,
+/// vintage_column)`: matches name columns; returns a dict with the row ids
+/// (little-endian u32 bytes), the seven added fields of each distinct name
+/// (as columns), the review table (as columns) and summary counts.
 fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>> {
     let py = args.py();
     let column = |i: usize, what: &str| -> PyResult<Option<Column>> {
@@ -301,9 +221,12 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
     let vintage: Option<u16> = arg(args, 3)?;
     let level: Option<String> = arg(args, 4)?;
     let reference: Option<PathBuf> = arg(args, 5)?;
-    let decisions: Option<PathBuf> = arg(args, 6)?;
-    let label: String = arg(args, 7)?;
-    let vintage_column: Option<String> = arg(args, 8)?;
+    let composites: Option<PathBuf> = arg(args, 6)?;
+    let decisions: Option<PathBuf> = arg(args, 7)?;
+    let label: String = arg(args, 8)?;
+    let name_column: String = arg(args, 9)?;
+    let state_column: Option<String> = arg(args, 10)?;
+    let vintage_column: Option<String> = arg(args, 11)?;
     if states.as_ref().is_some_and(|s| s.len != names.len)
         || years.as_ref().is_some_and(|s| s.len != names.len)
     {
@@ -320,9 +243,14 @@ fn match_columns<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>
                 vintage,
                 level.as_deref(),
                 reference,
+                composites,
                 decisions,
                 &label,
-                vintage_column.as_deref(),
+                [
+                    &name_column,
+                    state_column.as_deref().unwrap_or(""),
+                    vintage_column.as_deref().unwrap_or(""),
+                ],
             )
         })
         .map_err(py_err)?;
@@ -486,28 +414,159 @@ fn reference_table<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDic
     Ok(d)
 }
 
-/// `run_command(args)`: runs `regionkey apply` or `regionkey overlay` on
-/// files (`args` as the command line would give them, without the program
-/// name), until these steps have an in-memory library entry.
-fn run_command(args: &Bound<'_, PyTuple>) -> PyResult<()> {
-    use clap::Parser;
+/// `apply_files(data, crosswalk, to_vintage, code_column, state_column,
+/// period_column, sums, ratios, means, min_coverage, decimals, missing,
+/// all_units, output, report)`: `regionkey apply` through the library: its
+/// checked configuration ([`apply::Config::from_args`]) and [`apply::execute`],
+/// on a data file and a crosswalk file (or `None` with `to_vintage`),
+/// writing the results (and the report, if a path is given). Returns the
+/// rows read and allocated.
+fn apply_files(args: &Bound<'_, PyTuple>) -> PyResult<(u64, u64)> {
+    use regionkey::cli::{apply, group::WeightBy};
+    let a = apply::Args {
+        data: PathBuf::from(arg::<String>(args, 0)?),
+        crosswalk: arg::<Option<String>>(args, 1)?.map(PathBuf::from),
+        to_vintage: arg(args, 2)?,
+        code_column: arg(args, 3)?,
+        state_column: arg(args, 4)?,
+        period_column: arg(args, 5)?,
+        sums: arg(args, 6)?,
+        ratios: arg(args, 7)?,
+        means: arg(args, 8)?,
+        min_coverage: arg(args, 9)?,
+        decimals: arg(args, 10)?,
+        separator: None,
+        missing: arg(args, 11)?,
+        allow_name: Vec::new(),
+        all_units: arg(args, 12)?,
+        skip_unweighted: false,
+        output: arg(args, 13)?,
+        report: arg::<Option<String>>(args, 14)?.map(PathBuf::from),
+        emit_sql: None,
+        sql_tables: "data,crosswalk".into(),
+        split_by: WeightBy::Area,
+        population: None,
+    };
+    let report = args
+        .py()
+        .detach(|| apply::Config::from_args(&a).and_then(|c| apply::execute(&c)))
+        .map_err(py_err)?;
+    Ok((report.rows, report.rows_allocated))
+}
+
+/// `overlay_layers(from, to, from_key, to_key, from_object, to_object,
+/// weight, population, population_field, min_share, output)`: `regionkey
+/// overlay` through the library: a [`overlay::Config`] made here (the
+/// checks of the command's options repeated) and [`overlay::execute`],
+/// which writes the crosswalk file and its sidecar to `output`. Returns the
+/// crosswalk's columns (from_code, to_code, weight, target_share, basis)
+/// from memory, unrounded.
+fn overlay_layers<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>> {
+    use regionkey::cli::overlay;
+    use regionkey::io::geo::{LayerRequest, RepeatedKeys};
+    use regionkey::io::output::Target;
     let py = args.py();
-    let args: Vec<String> = arg(args, 0)?;
-    let argv = std::iter::once("regionkey".to_string()).chain(args);
-    let cli = regionkey::cli::Cli::try_parse_from(argv)
-        .map_err(|e| RegionkeyError::new_err(e.to_string()))?;
-    let global = regionkey::cli::Global { quiet: true };
-    py.detach(|| {
-        use regionkey::cli::{apply, overlay, Command};
-        match cli.command {
-            Command::Apply(a) => apply::run(a, global),
-            Command::Overlay(a) => overlay::run(a, global),
-            _ => Err(Error::Usage(
-                "only apply and overlay run through run_command".into(),
-            )),
+    let from: String = arg(args, 0)?;
+    let to: String = arg(args, 1)?;
+    let weight: String = arg(args, 6)?;
+    let population: Option<String> = arg(args, 7)?;
+    let field: Option<String> = arg(args, 8)?;
+    let min_share: Option<f64> = arg(args, 9)?;
+    let min_share = min_share.unwrap_or(regionkey::core::overlay::DEFAULT_MIN_SHARE);
+    if !(0.0..0.5).contains(&min_share) {
+        return Err(RegionkeyError::new_err(format!(
+            "--min-share {min_share} is out of range; give a share from 0 (keep everything) up to below 0.5"
+        )));
+    }
+    let population = match (weight.as_str(), population, field) {
+        ("population", Some(p), Some(f)) => Some((p, f)),
+        ("population", None, _) => {
+            return Err(RegionkeyError::new_err(
+                "--weight population needs --population LAYER and --population-field FIELD",
+            ))
         }
-    })
-    .map_err(py_err)
+        ("population", Some(_), None) => {
+            return Err(RegionkeyError::new_err(
+                "--population needs --population-field FIELD (the count column)",
+            ))
+        }
+        ("area", None, None) => None,
+        ("area", _, _) => {
+            return Err(RegionkeyError::new_err(
+                "--population is used only with --weight population",
+            ))
+        }
+        (other, _, _) => {
+            return Err(RegionkeyError::new_err(format!(
+                "weight {other:?}: choose \"area\" or \"population\""
+            )))
+        }
+    };
+    let label = |spec: &str| -> String {
+        match spec.strip_prefix("builtin:") {
+            Some(b) => b.to_string(),
+            None => std::path::Path::new(spec)
+                .file_stem()
+                .map(|n| {
+                    n.to_string_lossy()
+                        .split('.')
+                        .next()
+                        .unwrap_or("")
+                        .to_string()
+                })
+                .unwrap_or_default(),
+        }
+    };
+    let config = overlay::Config {
+        from_label: label(&from),
+        to_label: label(&to),
+        from: LayerRequest {
+            spec: from,
+            key: arg(args, 2)?,
+            object: arg(args, 4)?,
+            key_option: "--from-key",
+            object_option: "--from-object",
+        },
+        to: LayerRequest {
+            spec: to,
+            key: arg(args, 3)?,
+            object: arg(args, 5)?,
+            key_option: "--to-key",
+            object_option: "--to-object",
+        },
+        population,
+        min_share,
+        parent_digits: None,
+        repeated: RepeatedKeys::Merge,
+        quiet: true,
+        output: Target::File(PathBuf::from(arg::<String>(args, 10)?)),
+        report: None,
+    };
+    let report = py.detach(|| overlay::execute(&config)).map_err(py_err)?;
+    let rows = &report.crosswalk.rows;
+    let d = PyDict::new(py);
+    d.set_item(
+        "from_code",
+        rows.iter()
+            .map(|r| r.from_code.as_str())
+            .collect::<Vec<_>>(),
+    )?;
+    d.set_item(
+        "to_code",
+        rows.iter()
+            .map(|r| r.to_code.as_deref())
+            .collect::<Vec<_>>(),
+    )?;
+    d.set_item("weight", rows.iter().map(|r| r.weight).collect::<Vec<_>>())?;
+    d.set_item(
+        "target_share",
+        rows.iter().map(|r| r.target_share).collect::<Vec<_>>(),
+    )?;
+    d.set_item(
+        "basis",
+        rows.iter().map(|r| r.basis.as_str()).collect::<Vec<_>>(),
+    )?;
+    Ok(d)
 }
 
 /// `sql_query(dialect, data_table, crosswalk_table, has_origin, code_column,
@@ -621,7 +680,10 @@ fn module(py: Python<'_>) -> PyResult<Bound<'_, PyModule>> {
     add(&m, c"reference_table", |a| {
         reference_table(a).map(|d| d.unbind())
     })?;
-    add(&m, c"run_command", run_command)?;
+    add(&m, c"apply_files", apply_files)?;
+    add(&m, c"overlay_layers", |a| {
+        overlay_layers(a).map(|d| d.unbind())
+    })?;
     add(&m, c"sql_query", sql_query)?;
     m.add("CAUTION", regionkey::cli::apply::CAUTION)?;
     Ok(m)

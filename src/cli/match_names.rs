@@ -8,11 +8,16 @@
 //! those is taken too, the command stops with an error naming the column).
 
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
 
 use super::{say, warn, Global};
 pub use crate::core::match_table::ADDED_COLUMNS;
-use crate::core::match_table::{added_fields, match_rows, Matched, Settings, Tally};
+use crate::core::match_table::{
+    added_fields, distinct_values, match_columns, states_among, Columns, KeyColumn, Matched,
+    Settings, Tally,
+};
 use crate::core::matcher::{CodeForm, Matcher, Status};
 use crate::core::reference::Reference;
 use crate::error::{Error, Location, Result};
@@ -22,6 +27,9 @@ use crate::io::output::{write_to, Target};
 use crate::io::progress::Progress;
 use crate::io::review::{read_decisions, write_review, Decisions};
 use crate::io::table::{read_table, ReadOptions, Table};
+
+/// Rows of the matched table written as one block of CSV by one thread.
+const WRITE_BLOCK: usize = 8192;
 
 /// Prefix of the added columns when the input already uses one of their names.
 pub const COLUMN_PREFIX: &str = "rk_";
@@ -150,12 +158,9 @@ pub struct Config {
     pub vintage_column: Option<String>,
     /// What the names are matched against.
     pub source: Source,
-    /// How numbers in the name column are read.
-    pub codes: CodeForm,
-    /// The vintage of rows without a year of their own.
-    pub vintage: u16,
-    /// First and latest vintage the reference covers.
-    pub span: (u16, u16),
+    /// How numbers are read, the vintage of rows without a year of their
+    /// own, the span of vintages the reference covers.
+    pub settings: Settings,
     /// Decisions file, if any.
     pub decisions: Option<PathBuf>,
     /// The matched table.
@@ -179,6 +184,76 @@ pub struct Report {
     pub review_written: bool,
     /// Rows written to the distinct-keys file, if one was asked for.
     pub distinct_keys: Option<usize>,
+}
+
+/// The reference and the settings of a run, checked as the command checks
+/// its options: `level` and `reference` exclusive, no state column with
+/// `--level state`, a vintage inside the built-in county reference, every
+/// member of the user's composites a unit. The command and the Python
+/// package both start here.
+pub fn prepare(
+    level: Option<LevelArg>,
+    reference: Option<&Path>,
+    composites: Option<&Path>,
+    vintage: Option<u16>,
+    has_states: bool,
+) -> Result<(Source, Settings)> {
+    let (source, codes) = match (reference, level) {
+        (Some(_), Some(_)) => {
+            return Err(Error::Usage(
+                "--level chooses a built-in reference; it cannot be combined with --reference"
+                    .into(),
+            ))
+        }
+        (Some(path), None) => (Source::File(read_reference_file(path)?), CodeForm::Plain),
+        (None, Some(LevelArg::State)) => (Source::Builtin(us_states()?), CodeForm::State),
+        (None, _) => (Source::Builtin(us_counties()?), CodeForm::County),
+    };
+    if codes == CodeForm::State && has_states {
+        return Err(Error::Usage(
+            "--state-column has no meaning with --level state: the names are the states".into(),
+        ));
+    }
+    let r = source.get();
+    // The spans of the built-in reference end or start no later than 2022
+    // (no change fell in 2023), so `latest_year` says 2022; the data cover
+    // vintage 2023 (reference/README.md).
+    let latest = match source {
+        Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
+        Source::File(_) => r.latest_year().unwrap_or(0),
+    };
+    let vintage = vintage.unwrap_or(latest);
+    let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
+    if codes == CodeForm::County && (vintage < first || vintage > latest) {
+        return Err(Error::Usage(format!(
+            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
+        )));
+    }
+    let source = match composites {
+        None => source,
+        Some(path) => {
+            let named = read_composites_file(path)?;
+            let mut r = source.get().clone();
+            for c in named.items() {
+                if let Some(m) = c.members.iter().find(|m| r.eras(m).is_empty()) {
+                    return Err(Error::Usage(format!(
+                        "{}: composite {:?} ({}) names {m}, which is no unit of the reference",
+                        path.display(),
+                        c.name,
+                        c.source
+                    )));
+                }
+            }
+            r.aliases.extend(as_aliases(&named));
+            Source::File(r)
+        }
+    };
+    let settings = Settings {
+        codes,
+        vintage,
+        span: (first, latest),
+    };
+    Ok((source, settings))
 }
 
 /// Turns arguments into a checked configuration: outputs writable and
@@ -210,56 +285,13 @@ pub fn configure(args: &Args, global: Global) -> Result<Config> {
     };
     let review = take("--review", &mut others);
     let distinct_keys = take("--distinct-keys", &mut others);
-    let (source, codes) = match (&args.reference, args.level) {
-        (Some(_), Some(_)) => {
-            return Err(Error::Usage(
-                "--level chooses a built-in reference; it cannot be combined with --reference"
-                    .into(),
-            ))
-        }
-        (Some(path), None) => (Source::File(read_reference_file(path)?), CodeForm::Plain),
-        (None, Some(LevelArg::State)) => (Source::Builtin(us_states()?), CodeForm::State),
-        (None, _) => (Source::Builtin(us_counties()?), CodeForm::County),
-    };
-    if codes == CodeForm::State && args.state_column.is_some() {
-        return Err(Error::Usage(
-            "--state-column has no meaning with --level state: the names are the states".into(),
-        ));
-    }
-    let r = source.get();
-    // The spans of the built-in reference end or start no later than 2022
-    // (no change fell in 2023), so `latest_year` says 2022; the data cover
-    // vintage 2023 (reference/README.md).
-    let latest = match source {
-        Source::Builtin(_) => r.latest_year().unwrap_or(0).max(BUILTIN_LATEST_VINTAGE),
-        Source::File(_) => r.latest_year().unwrap_or(0),
-    };
-    let vintage = args.vintage.unwrap_or(latest);
-    let first = r.units.iter().map(|u| u.valid.from).min().unwrap_or(0);
-    if codes == CodeForm::County && (vintage < first || vintage > latest) {
-        return Err(Error::Usage(format!(
-            "--vintage {vintage}: the built-in county reference covers {first}-{latest}"
-        )));
-    }
-    let source = match &args.composites {
-        None => source,
-        Some(path) => {
-            let named = read_composites_file(path)?;
-            let mut r = source.get().clone();
-            for c in named.items() {
-                if let Some(m) = c.members.iter().find(|m| r.eras(m).is_empty()) {
-                    return Err(Error::Usage(format!(
-                        "{}: composite {:?} ({}) names {m}, which is no unit of the reference",
-                        path.display(),
-                        c.name,
-                        c.source
-                    )));
-                }
-            }
-            r.aliases.extend(as_aliases(&named));
-            Source::File(r)
-        }
-    };
+    let (source, settings) = prepare(
+        args.level,
+        args.reference.as_deref(),
+        args.composites.as_deref(),
+        args.vintage,
+        args.state_column.is_some(),
+    )?;
     Ok(Config {
         input: args.input.clone(),
         delimiter: args.delimiter,
@@ -267,39 +299,13 @@ pub fn configure(args: &Args, global: Global) -> Result<Config> {
         state_column: args.state_column.clone(),
         vintage_column: args.vintage_column.clone(),
         source,
-        codes,
-        vintage,
-        span: (first, latest),
+        settings,
         decisions: args.decisions.clone(),
         output,
         review,
         distinct_keys,
         quiet: global.quiet,
     })
-}
-
-/// The year of a row's vintage column: the first four digits ("2015",
-/// "2015.0", "2015-06-30"), no earlier than the reference's first vintage.
-fn row_year(table: &Table, row: usize, col: usize, span: (u16, u16)) -> Result<u16> {
-    let text = table.records[row][col].trim();
-    let digits: String = text.chars().take_while(|c| c.is_ascii_digit()).collect();
-    let year = (digits.len() == 4)
-        .then(|| digits.parse::<u16>().ok())
-        .flatten();
-    match year {
-        Some(y) if y >= span.0 => Ok(y),
-        Some(y) => Err(Error::input(
-            table.location(row, col),
-            format!(
-                "year {y} is before the reference's first vintage ({})",
-                span.0
-            ),
-        )),
-        None => Err(Error::input(
-            table.location(row, col),
-            format!("{text:?} is not a year (--vintage-column wants a four-digit year per row)"),
-        )),
-    }
 }
 
 /// The names of the added columns for this input.
@@ -363,123 +369,36 @@ fn folded(header: &str) -> String {
         .to_ascii_lowercase()
 }
 
-/// Rows looked at by the column checks: enough to tell a column of years
-/// from a column of states, cheap on a table of millions.
-const CHECKED_ROWS: usize = 20_000;
-
-/// Distinct non-empty values of a column among the first [`CHECKED_ROWS`]
-/// rows, in input order, with the row of their first appearance.
-fn distinct_values(table: &Table, col: usize) -> Vec<(&str, usize)> {
-    let mut seen: std::collections::HashSet<&str> = std::collections::HashSet::new();
-    let mut out = Vec::new();
-    for (row, r) in table.records.iter().enumerate().take(CHECKED_ROWS) {
-        let v = r[col].trim();
-        if !v.is_empty() && seen.insert(v) {
-            out.push((v, row));
-        }
-    }
-    out
-}
-
-/// True for a value made of digits (with separators, a sign or decimals).
-fn is_number(text: &str) -> bool {
-    text.bytes().any(|b| b.is_ascii_digit())
-        && text
-            .bytes()
-            .all(|b| b.is_ascii_digit() || matches!(b, b'.' | b',' | b'-' | b'+' | b' '))
-}
-
-/// Options that would run and succeed while matching nothing: a state
-/// column of years, a name column of numbers that are no codes. Stops with
-/// an error naming the column and a value. A column that holds states but
-/// was not given as --state-column is a warning.
-fn check_columns(
+/// A column that holds states but was not given as --state-column: a
+/// warning saying how to use it (without it a name is accepted only when
+/// it is unique in the whole reference).
+fn unused_state_columns(
     config: &Config,
     table: &Table,
     matcher: &Matcher<'_>,
-    name_col: usize,
-    state_col: Option<usize>,
-    vintage_col: Option<usize>,
-) -> Result<Vec<String>> {
+    used: &[Option<usize>],
+) -> Vec<String> {
     let mut warnings = Vec::new();
-    if let Some(col) = state_col {
-        let values = distinct_values(table, col);
-        let states = values
-            .iter()
-            .filter(|(v, _)| matcher.parent_of(v).is_some())
-            .count();
-        if !values.is_empty() && states * 10 < values.len() {
-            let (example, row) = values
-                .iter()
-                .find(|(v, _)| matcher.parent_of(v).is_none())
-                .copied()
-                .unwrap_or(values[0]);
-            let reference = config.source.get();
-            let hint = match (&config.source, reference.parents.first()) {
-                (Source::File(_), Some(p)) => format!(
-                    " (its parents are written like {:?}{}; a parent_name column in the reference lets the state column use names)",
-                    p.code,
-                    if p.name != p.code { format!(" or {:?}", p.name) } else { String::new() }
-                ),
-                _ => String::new(),
-            };
-            return Err(Error::input(
-                table.location(row, col),
-                format!(
-                    "--state-column names a column whose values are not states of {}{hint} (e.g. {example:?}; {states} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
-                    reference.label,
-                    values.len()
-                ),
+    if !matcher.has_parents() || config.settings.codes == CodeForm::State {
+        return warnings;
+    }
+    let user = matches!(config.source, Source::File(_));
+    for (col, header) in table.headers.iter().enumerate() {
+        let f = folded(header);
+        let like = STATE_LIKE.contains(&f.as_str()) || (user && PARENT_LIKE.contains(&f.as_str()));
+        if !like || used.contains(&Some(col)) {
+            continue;
+        }
+        let values = distinct_values(table.records.iter().map(|r| &r[col]));
+        let states = states_among(matcher, &values);
+        if !values.is_empty() && states * 2 >= values.len() {
+            warnings.push(format!(
+                "{}: column {header:?} holds states but is not used; pass --state-column {header:?} to read each name within its state (without it a name is accepted only when it is unique in the whole reference)",
+                table.path.display()
             ));
         }
     }
-    let values = distinct_values(table, name_col);
-    if !values.is_empty() && values.iter().all(|(v, _)| is_number(v)) {
-        let sample = &values[..values.len().min(1000)];
-        let state_of = |row: usize| state_col.map(|c| table.records[row][c].trim());
-        let codes = sample
-            .iter()
-            .filter(|(v, row)| matcher.resolve(v, state_of(*row)).status != Status::Unmatched)
-            .count();
-        if codes * 2 < sample.len() {
-            let (example, row) = sample
-                .iter()
-                .find(|(v, row)| matcher.resolve(v, state_of(*row)).status == Status::Unmatched)
-                .copied()
-                .unwrap_or(sample[0]);
-            return Err(Error::input(
-                table.location(row, name_col),
-                format!(
-                    "--name-column names a column of numbers, and most are no code of {} (e.g. {example:?}; {codes} of {} are); name the column that holds the place names or codes",
-                    config.source.get().label,
-                    sample.len()
-                ),
-            ));
-        }
-    }
-    if state_col.is_none() && matcher.has_parents() && config.codes != CodeForm::State {
-        let user = matches!(config.source, Source::File(_));
-        for (col, header) in table.headers.iter().enumerate() {
-            let f = folded(header);
-            let like =
-                STATE_LIKE.contains(&f.as_str()) || (user && PARENT_LIKE.contains(&f.as_str()));
-            if !like || col == name_col || Some(col) == vintage_col {
-                continue;
-            }
-            let values = distinct_values(table, col);
-            let states = values
-                .iter()
-                .filter(|(v, _)| matcher.parent_of(v).is_some())
-                .count();
-            if !values.is_empty() && states * 2 >= values.len() {
-                warnings.push(format!(
-                    "{}: column {header:?} holds states but is not used; pass --state-column {header:?} to read each name within its state (without it a name is accepted only when it is unique in the whole reference)",
-                    table.path.display()
-                ));
-            }
-        }
-    }
-    Ok(warnings)
+    warnings
 }
 
 /// Runs one match: reads the input and the decisions, matches every
@@ -508,47 +427,40 @@ pub fn execute(config: &Config) -> Result<Report> {
         .as_deref()
         .map(|c| table.column(c))
         .transpose()?;
-    let matcher = Matcher::new(reference, config.vintage, config.codes);
-    if state_col.is_some() && !matcher.has_parents() {
-        return Err(Error::Usage(format!(
-            "--state-column: the reference {} has no parent units to read a state against",
-            reference.label
-        )));
-    }
-    warnings.extend(check_columns(
-        config,
-        &table,
-        &matcher,
-        name_col,
-        state_col,
-        vintage_col,
-    )?);
-    drop(matcher);
     let added = added_columns(&table)?;
-    let years: Option<Vec<u16>> = match vintage_col {
-        None => None,
-        Some(c) => Some(
-            (0..table.len())
-                .map(|row| row_year(&table, row, c, config.span))
-                .collect::<Result<_>>()?,
-        ),
+    if state_col.is_none() {
+        let matcher = Matcher::new(reference, config.settings.vintage, config.settings.codes);
+        warnings.extend(unused_state_columns(
+            config,
+            &table,
+            &matcher,
+            &[Some(name_col), vintage_col],
+        ));
+    }
+    let column = |c: usize| -> Vec<&str> { table.records.iter().map(|r| &r[c]).collect() };
+    let names = column(name_col);
+    let states = state_col.map(column);
+    let years = vintage_col.map(column);
+    let at = |row: usize, key: KeyColumn| {
+        let col = match key {
+            KeyColumn::Name => Some(name_col),
+            KeyColumn::State => state_col,
+            KeyColumn::Year => vintage_col,
+        };
+        table.location(row, col.unwrap_or(name_col))
     };
-    let names: Vec<&str> = table.records.iter().map(|r| &r[name_col]).collect();
-    let states: Option<Vec<&str>> =
-        state_col.map(|c| table.records.iter().map(|r| &r[c]).collect());
 
     let progress = Progress::new(table.len() as u64, "matching", config.quiet);
-    let matched = match_rows(
+    let matched = match_columns(
         reference,
-        Settings {
-            codes: config.codes,
-            vintage: config.vintage,
-            span: config.span,
+        config.settings,
+        Columns {
+            names: &names,
+            states: states.as_deref(),
+            years: years.as_deref(),
         },
-        &names,
-        states.as_deref(),
-        years.as_deref(),
         &decisions,
+        &at,
         &|n| progress.inc(n),
     )?;
     progress.finish();
@@ -559,10 +471,13 @@ pub fn execute(config: &Config) -> Result<Report> {
         .iter()
         .map(|k| added_fields(&k.resolution))
         .collect();
+    let writer = || {
+        let mut b = csv::WriterBuilder::new();
+        b.delimiter(table.delimiter);
+        b
+    };
     write_to(&config.output, |w: &mut dyn Write| {
-        let mut out = csv::WriterBuilder::new()
-            .delimiter(table.delimiter)
-            .from_writer(w);
+        let mut out = writer().from_writer(&mut *w);
         out.write_record(
             table
                 .headers
@@ -570,14 +485,33 @@ pub fn execute(config: &Config) -> Result<Report> {
                 .map(String::as_str)
                 .chain(added.iter().map(String::as_str)),
         )?;
-        for (record, &id) in table.records.iter().zip(&matched.row_key) {
-            out.write_record(
-                record
-                    .iter()
-                    .chain(fields[id as usize].iter().map(String::as_str)),
-            )?;
-        }
         out.flush()?;
+        drop(out);
+        // Rows are written as CSV in blocks on every thread, each block by
+        // its own writer with the same settings (a record's bytes do not
+        // depend on the records before it), and the blocks go out in input
+        // order: the same bytes whatever the thread count.
+        let rows: Vec<(&csv::StringRecord, &u32)> =
+            table.records.iter().zip(&matched.row_key).collect();
+        for batch in rows.chunks(WRITE_BLOCK * 16) {
+            let blocks: Vec<std::io::Result<Vec<u8>>> = batch
+                .par_chunks(WRITE_BLOCK)
+                .map(|block| {
+                    let mut out = writer().from_writer(Vec::with_capacity(block.len() * 96));
+                    for (record, &id) in block {
+                        out.write_record(
+                            record
+                                .iter()
+                                .chain(fields[id as usize].iter().map(String::as_str)),
+                        )?;
+                    }
+                    out.into_inner().map_err(|e| e.into_error())
+                })
+                .collect();
+            for block in blocks {
+                w.write_all(&block?)?;
+            }
+        }
         Ok(())
     })?;
     if let Some(target) = &config.review {

@@ -10,7 +10,7 @@
 //! state) and run of years that resolved alike, so a name that needs a
 //! person in 2022-2023 but not before is listed for 2022-2023 only.
 
-use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::collections::{BTreeMap, BTreeSet, HashMap, HashSet};
 
 use rayon::prelude::*;
 
@@ -19,7 +19,7 @@ use crate::core::decisions::{Choice, Decision, Decisions, Years, NONE};
 use crate::core::fips;
 use crate::core::matcher::{Candidate, CodeForm, Matcher, Method, Resolution, Status};
 use crate::core::reference::Reference;
-use crate::error::{Error, Result};
+use crate::error::{Error, Location, Result};
 
 /// The columns `regionkey match` adds to every row, in order.
 pub const ADDED_COLUMNS: [&str; 7] = [
@@ -60,6 +60,61 @@ pub struct Settings {
     pub span: (u16, u16),
 }
 
+/// Hashing for the index of distinct keys, looked up once per input row:
+/// a multiply-rotate hash over eight bytes at a time (the one rustc uses
+/// for its own tables), several times faster than the standard library's
+/// SipHash on short names. The order of the keys never depends on it.
+#[derive(Debug, Clone, Copy, Default)]
+struct KeyHashing;
+
+impl std::hash::BuildHasher for KeyHashing {
+    type Hasher = KeyHasher;
+    fn build_hasher(&self) -> KeyHasher {
+        KeyHasher(0)
+    }
+}
+
+/// The hasher of [`KeyHashing`].
+#[derive(Debug, Clone, Copy)]
+struct KeyHasher(u64);
+
+impl KeyHasher {
+    fn add(&mut self, word: u64) {
+        self.0 = (self.0.rotate_left(5) ^ word).wrapping_mul(0x51_7c_c1_b7_27_22_0a_95);
+    }
+}
+
+impl std::hash::Hasher for KeyHasher {
+    fn write(&mut self, bytes: &[u8]) {
+        let mut words = bytes.chunks_exact(8);
+        for w in &mut words {
+            self.add(w.try_into().map_or(0, u64::from_le_bytes));
+        }
+        let rest = words.remainder();
+        if !rest.is_empty() {
+            let mut last = [0u8; 8];
+            last[..rest.len()].copy_from_slice(rest);
+            self.add(u64::from_le_bytes(last));
+        }
+    }
+
+    fn write_u8(&mut self, i: u8) {
+        self.add(u64::from(i));
+    }
+
+    fn write_u16(&mut self, i: u16) {
+        self.add(u64::from(i));
+    }
+
+    fn write_usize(&mut self, i: usize) {
+        self.add(i as u64);
+    }
+
+    fn finish(&self) -> u64 {
+        self.0
+    }
+}
+
 /// The matchers of the vintages met so far, built on first use.
 pub struct Matchers<'r> {
     reference: &'r Reference,
@@ -75,6 +130,13 @@ impl<'r> Matchers<'r> {
             codes,
             built: HashMap::new(),
         }
+    }
+
+    /// The matchers with one already built (of its own vintage).
+    pub fn starting_with(reference: &'r Reference, codes: CodeForm, built: Matcher<'r>) -> Self {
+        let mut m = Matchers::new(reference, codes);
+        m.built.insert(built.vintage(), built);
+        m
     }
 
     /// The matcher of `vintage`.
@@ -278,6 +340,214 @@ pub fn vintage_of(year: u16, span: (u16, u16)) -> Option<u16> {
     (year >= span.0).then_some(year.min(span.1))
 }
 
+/// The key columns of a table that a check can point at.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum KeyColumn {
+    /// The column of names (or codes).
+    Name,
+    /// The column of states.
+    State,
+    /// The column of years.
+    Year,
+}
+
+/// Where row `row` (0-based) of a key column sits, for messages: a file's
+/// line, or a DataFrame's row.
+pub type Locate<'a> = dyn Fn(usize, KeyColumn) -> Location + Sync + 'a;
+
+/// The key columns of a table as text, each as long as `names`.
+#[derive(Debug)]
+pub struct Columns<'a, S> {
+    /// Names (or codes).
+    pub names: &'a [S],
+    /// States, if the table has a state column.
+    pub states: Option<&'a [S]>,
+    /// Each row's year as written, if the rows carry their own year.
+    pub years: Option<&'a [S]>,
+}
+
+impl<S> Clone for Columns<'_, S> {
+    fn clone(&self) -> Self {
+        *self
+    }
+}
+
+impl<S> Copy for Columns<'_, S> {}
+
+/// The year of a row's vintage value: its first four digits ("2015",
+/// "2015.0", "2015-06-30"), no earlier than the reference's first vintage.
+/// Otherwise what is wrong, to be said at the row's place.
+pub fn year_of(text: &str, span: (u16, u16)) -> std::result::Result<u16, String> {
+    let text = text.trim();
+    let digits = text.bytes().take_while(u8::is_ascii_digit).count();
+    let year = (digits == 4)
+        .then(|| text[..4].parse::<u16>().ok())
+        .flatten();
+    match year {
+        Some(y) if y >= span.0 => Ok(y),
+        Some(y) => Err(format!(
+            "year {y} is before the reference's first vintage ({})",
+            span.0
+        )),
+        None => Err(format!(
+            "{text:?} is not a year (--vintage-column wants a four-digit year per row)"
+        )),
+    }
+}
+
+/// Each row's year ([`year_of`]); the first that is none is an error at
+/// its place.
+pub fn row_years<S: AsRef<str>>(
+    texts: &[S],
+    span: (u16, u16),
+    at: &Locate<'_>,
+) -> Result<Vec<u16>> {
+    texts
+        .iter()
+        .enumerate()
+        .map(|(row, t)| {
+            year_of(t.as_ref(), span).map_err(|m| Error::input(at(row, KeyColumn::Year), m))
+        })
+        .collect()
+}
+
+/// Rows looked at by the column checks: enough to tell a column of years
+/// from a column of states, cheap on a table of millions.
+pub const CHECKED_ROWS: usize = 20_000;
+
+/// Distinct non-empty values (trimmed) among the first [`CHECKED_ROWS`]
+/// rows, in input order, with the row of their first appearance.
+pub fn distinct_values<'a>(values: impl Iterator<Item = &'a str>) -> Vec<(&'a str, usize)> {
+    let mut seen: HashSet<&str> = HashSet::new();
+    let mut out = Vec::new();
+    for (row, v) in values.take(CHECKED_ROWS).enumerate() {
+        let v = v.trim();
+        if !v.is_empty() && seen.insert(v) {
+            out.push((v, row));
+        }
+    }
+    out
+}
+
+/// How many of `values` name a state (a parent) of the matcher's
+/// reference.
+pub fn states_among(matcher: &Matcher<'_>, values: &[(&str, usize)]) -> usize {
+    values
+        .iter()
+        .filter(|(v, _)| matcher.parent_of(v).is_some())
+        .count()
+}
+
+/// True for a value made of digits (with separators, a sign or decimals).
+fn is_number(text: &str) -> bool {
+    text.bytes().any(|b| b.is_ascii_digit())
+        && text
+            .bytes()
+            .all(|b| b.is_ascii_digit() || matches!(b, b'.' | b',' | b'-' | b'+' | b' '))
+}
+
+/// Options that would run and succeed while matching nothing: a state
+/// column of years (fewer than one value in ten is a state), a name column
+/// of numbers most of which are no codes. Stops with an error naming the
+/// column, the row and an example value; the command and the Python
+/// package both check their columns here.
+pub fn check_columns<S: AsRef<str>>(
+    matcher: &Matcher<'_>,
+    reference: &Reference,
+    settings: Settings,
+    columns: Columns<'_, S>,
+    at: &Locate<'_>,
+) -> Result<()> {
+    if let Some(states) = columns.states {
+        let values = distinct_values(states.iter().map(AsRef::as_ref));
+        let found = states_among(matcher, &values);
+        if !values.is_empty() && found * 10 < values.len() {
+            let (example, row) = values
+                .iter()
+                .find(|(v, _)| matcher.parent_of(v).is_none())
+                .copied()
+                .unwrap_or(values[0]);
+            let hint = match (settings.codes, reference.parents.first()) {
+                (CodeForm::Plain, Some(p)) => format!(
+                    " (its parents are written like {:?}{}; a parent_name column in the reference lets the state column use names)",
+                    p.code,
+                    if p.name != p.code { format!(" or {:?}", p.name) } else { String::new() }
+                ),
+                _ => String::new(),
+            };
+            return Err(Error::input(
+                at(row, KeyColumn::State),
+                format!(
+                    "--state-column names a column whose values are not states of {}{hint} (e.g. {example:?}; {found} of {} distinct values is one: a name, postal code, abbreviation or code); name the column that holds the state",
+                    reference.label,
+                    values.len()
+                ),
+            ));
+        }
+    }
+    let values = distinct_values(columns.names.iter().map(AsRef::as_ref));
+    if !values.is_empty() && values.iter().all(|(v, _)| is_number(v)) {
+        let sample = &values[..values.len().min(1000)];
+        let state_of = |row: usize| columns.states.map(|c| c[row].as_ref().trim());
+        let unmatched = |(v, row): &(&str, usize)| {
+            matcher.resolve(v, state_of(*row)).status == Status::Unmatched
+        };
+        let codes = sample.iter().filter(|v| !unmatched(v)).count();
+        if codes * 2 < sample.len() {
+            let (example, row) = sample
+                .iter()
+                .find(|v| unmatched(v))
+                .copied()
+                .unwrap_or(sample[0]);
+            return Err(Error::input(
+                at(row, KeyColumn::Name),
+                format!(
+                    "--name-column names a column of numbers, and most are no code of {} (e.g. {example:?}; {codes} of {} are); name the column that holds the place names or codes",
+                    reference.label,
+                    sample.len()
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Matches a table given as its key columns of text: the library entry of
+/// `regionkey match` and of the Python package. Checks the columns first
+/// ([`check_columns`]; a state column against a reference without parents
+/// is an error too), reads each row's year where the rows carry one, then
+/// [`match_rows`]. `at` says where a row is, for messages.
+pub fn match_columns<S: AsRef<str> + Sync>(
+    reference: &Reference,
+    settings: Settings,
+    columns: Columns<'_, S>,
+    decisions: &Decisions,
+    at: &Locate<'_>,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<Matched> {
+    let matcher = Matcher::new(reference, settings.vintage, settings.codes);
+    if columns.states.is_some() && !matcher.has_parents() {
+        return Err(Error::Usage(format!(
+            "--state-column: the reference {} has no parent units to read a state against",
+            reference.label
+        )));
+    }
+    check_columns(&matcher, reference, settings, columns, at)?;
+    let years = columns
+        .years
+        .map(|y| row_years(y, settings.span, at))
+        .transpose()?;
+    match_rows_with(
+        Matchers::starting_with(reference, settings.codes, matcher),
+        settings,
+        columns.names,
+        columns.states,
+        years.as_deref(),
+        decisions,
+        progress,
+    )
+}
+
 /// Matches the rows given as columns: `names`, optionally `states` and
 /// `years` (each as long as `names`). Decisions apply in their years;
 /// `progress` is told how many rows each resolved key covers. Distinct keys
@@ -295,6 +565,27 @@ pub fn match_rows<S: AsRef<str> + Sync>(
     decisions: &Decisions,
     progress: &(dyn Fn(u64) + Sync),
 ) -> Result<Matched> {
+    match_rows_with(
+        Matchers::new(reference, settings.codes),
+        settings,
+        names,
+        states,
+        years,
+        decisions,
+        progress,
+    )
+}
+
+/// [`match_rows`] with the matchers built so far.
+fn match_rows_with<S: AsRef<str> + Sync>(
+    mut matchers: Matchers<'_>,
+    settings: Settings,
+    names: &[S],
+    states: Option<&[S]>,
+    years: Option<&[u16]>,
+    decisions: &Decisions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<Matched> {
     let n = names.len();
     if states.is_some_and(|s| s.len() != n) || years.is_some_and(|y| y.len() != n) {
         return Err(Error::Usage(format!(
@@ -303,7 +594,6 @@ pub fn match_rows<S: AsRef<str> + Sync>(
             years.map_or(n, <[u16]>::len)
         )));
     }
-    let mut matchers = Matchers::new(reference, settings.codes);
     let any_vintage = years.is_some();
     // With one vintage for all rows, the decisions that apply to it are
     // checked before the long work starts.
@@ -316,7 +606,8 @@ pub fn match_rows<S: AsRef<str> + Sync>(
     }
 
     // Each distinct (name, state, year) once, in input order.
-    let mut index: HashMap<(&str, &str, Option<u16>), u32> = HashMap::new();
+    let mut index: HashMap<(&str, &str, Option<u16>), u32, KeyHashing> =
+        HashMap::with_hasher(KeyHashing);
     let mut pending: Vec<(&str, &str, Option<u16>, u16, u64)> = Vec::new();
     let mut row_key: Vec<u32> = Vec::with_capacity(n);
     for i in 0..n {
@@ -458,7 +749,6 @@ pub fn review_items(keys: &[Key], vintage: u16) -> Vec<ReviewItem> {
 mod tests {
     use super::*;
     use crate::core::reference::{Parent, Unit, YearSpan};
-    use crate::error::Location;
 
     /// Two units of one name in one state, and a unit that is renamed: a
     /// made-up reference for the mechanics (the matcher's rules are tested

@@ -288,32 +288,44 @@ fn edits_of<T: PartialEq>(a: &[T], b: &[T], cap: usize) -> usize {
         return over;
     }
     let w = b.len() + 1;
-    // Three rows of the dynamic programme: two back, one back, this one.
-    let mut rows = vec![0usize; 3 * w];
-    for (j, x) in rows[w..2 * w].iter_mut().enumerate() {
-        *x = j;
+    // Three rows of the dynamic programme (row i in slot i % 3), on the
+    // stack for names of up to 63 letters: this runs for every unit of a
+    // block for every name that has no exact match.
+    const ON_STACK: usize = 3 * 64;
+    let mut stack = [0u32; ON_STACK];
+    let mut heap: Vec<u32> = Vec::new();
+    let rows: &mut [u32] = if 3 * w <= ON_STACK {
+        &mut stack[..3 * w]
+    } else {
+        heap.resize(3 * w, 0);
+        &mut heap
+    };
+    let slot = |i: usize| (i % 3) * w;
+    for (j, x) in rows[..w].iter_mut().enumerate() {
+        *x = j as u32;
     }
+    let cap32 = cap.min(u32::MAX as usize - 1) as u32;
     for i in 1..=a.len() {
-        let (back2, rest) = rows.split_at_mut(w);
-        let (back1, cur) = rest.split_at_mut(w);
-        cur[0] = i;
-        let mut row_min = cur[0];
+        let (cur, back1, back2) = (slot(i), slot(i - 1), slot(i + 1));
+        rows[cur] = i as u32;
+        let mut row_min = rows[cur];
         for j in 1..=b.len() {
-            let cost = usize::from(a[i - 1] != b[j - 1]);
-            let mut d = (back1[j] + 1).min(cur[j - 1] + 1).min(back1[j - 1] + cost);
+            let cost = u32::from(a[i - 1] != b[j - 1]);
+            let mut d = (rows[back1 + j] + 1)
+                .min(rows[cur + j - 1] + 1)
+                .min(rows[back1 + j - 1] + cost);
             if i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] {
-                d = d.min(back2[j - 2] + 1);
+                // Slot (i + 1) % 3 still holds row i - 2.
+                d = d.min(rows[back2 + j - 2] + 1);
             }
-            cur[j] = d;
+            rows[cur + j] = d;
             row_min = row_min.min(d);
         }
-        if row_min > cap {
+        if row_min > cap32 {
             return over;
         }
-        rows.rotate_left(w);
     }
-    // After the last rotation the latest row sits in the middle third.
-    rows[w + b.len()].min(over)
+    (rows[slot(a.len()) + b.len()] as usize).min(over)
 }
 
 /// Words that stand for "no place" in agency tables: totals, unknowns,
