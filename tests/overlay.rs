@@ -1026,3 +1026,49 @@ fn integer_keys_of_a_county_layer_keep_their_leading_zero() {
     // What `apply` and `inspect` read back is the same code.
     rk().arg("inspect").arg(&out).assert().success();
 }
+
+#[test]
+fn a_topojson_arc_position_that_is_not_a_pair_of_numbers_is_named_with_its_arc() {
+    // The arcs are read straight into numbers (io::geo::json_doc); a bad
+    // position is still reported by arc and position, in our words.
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("bad.topojson");
+    std::fs::write(
+        &p,
+        r#"{"type":"Topology","objects":{"u":{"type":"GeometryCollection","geometries":[{"type":"Polygon","id":"A","arcs":[[0]]}]}},"arcs":[[[0,0],[1,0],[1,"x"],[0,0]]]}"#,
+    )
+    .unwrap();
+    rk().arg("overlay")
+        .arg(&p)
+        .arg(&p)
+        .args(["--output"])
+        .arg(dir.path().join("x.csv"))
+        .assert()
+        .code(1)
+        .stderr(predicate::str::contains("bad.topojson"))
+        .stderr(predicate::str::contains(
+            "arc 0, position 3 is not a pair of numbers",
+        ));
+}
+
+#[test]
+fn when_both_layers_are_broken_the_source_layers_error_is_shown() {
+    // The two layers are read at the same time; the message must not
+    // depend on which read finishes first.
+    let dir = tempfile::tempdir().unwrap();
+    let a = dir.path().join("first.geojson");
+    let b = dir.path().join("second.geojson");
+    std::fs::write(&a, "{\"type\": \"FeatureCollection\", \"features\": [").unwrap();
+    std::fs::write(&b, "not json").unwrap();
+    for _ in 0..3 {
+        rk().arg("overlay")
+            .arg(&a)
+            .arg(&b)
+            .args(["--output"])
+            .arg(dir.path().join("x.csv"))
+            .assert()
+            .code(1)
+            .stderr(predicate::str::contains("first.geojson"))
+            .stderr(predicate::str::contains("second.geojson").not());
+    }
+}

@@ -644,3 +644,64 @@ fn apply_refuses_the_damaged_parquet_file_naming_row_group_and_column() {
         "parquet-decoder-abort.parquet: row group 1: column \"basis\"",
     ));
 }
+
+// Parquet files written by pyarrow and DuckDB, writers independent of
+// regionkey and of polars (fixtures/parquet/README.md): the structure check
+// must accept every form they write (row groups, several pages, v1 and v2
+// data pages, dictionary and plain, five codecs), and both readers must
+// read the values the fixture README describes.
+#[test]
+fn parquet_files_of_other_writers_pass_the_check_and_read_as_written() {
+    use regionkey::io::data::{read, DataSpec};
+    use regionkey::io::guard::parquet::check_file;
+    use regionkey::io::table::{read_table, ReadOptions};
+    let codes = [
+        "01001", "", "02261", "6037", "01003", "46113", "09001", "51515",
+    ];
+    let mut files: Vec<PathBuf> = std::fs::read_dir("fixtures/parquet")
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "parquet"))
+        .collect();
+    files.sort();
+    assert_eq!(files.len(), 8, "{files:?}");
+    for f in &files {
+        check_file(f).unwrap_or_else(|e| panic!("{e}"));
+        let t = read_table(f, ReadOptions::default()).unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(t.headers, ["code", "year", "count"], "{f:?}");
+        assert_eq!(t.len(), 200, "{f:?}");
+        for (i, r) in t.records.iter().enumerate() {
+            assert_eq!(&r[0], codes[i % 8], "{f:?} row {i}");
+            assert_eq!(
+                r[1].parse::<i64>().unwrap(),
+                2010 + (i as i64) % 14,
+                "{f:?} row {i}"
+            );
+            if i % 17 == 3 {
+                assert_eq!(&r[2], "", "{f:?} row {i}");
+            } else {
+                assert_eq!(
+                    r[2].parse::<f64>().unwrap(),
+                    i as f64 * 1.5,
+                    "{f:?} row {i}"
+                );
+            }
+        }
+        let spec = DataSpec {
+            path: f.clone(),
+            separator: None,
+            code_column: "code".into(),
+            state_column: None,
+            period_column: Some("year".into()),
+            value_columns: vec!["count".into()],
+            missing: vec!["NA".into()],
+            method_column: None,
+        };
+        let data = read(&spec).unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(data.rows, 200, "{f:?}");
+        let index = data.index();
+        // One row in 8 has no code; 14 distinct years.
+        assert_eq!(index.missing_code.0, 25, "{f:?}");
+        assert_eq!(index.periods.len(), 14, "{f:?}");
+    }
+}

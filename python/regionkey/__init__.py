@@ -281,15 +281,15 @@ def match(
     return _from_arrow(out, kind), _from_arrow(review, kind if kind != "arrow" else "arrow")
 
 
-# --- apply and overlay (files under the hood) ------------------------------
+# --- apply and overlay (the library's configuration and execute) ---------
 
 
-def _run(args: List[str], names: Dict[str, str]) -> None:
-    """Runs a command on temporary files; messages name the DataFrames, not
-    the temporary files (line N of a DataFrame is row N - 2, the header
+def _call(function: Any, args: Tuple[Any, ...], names: Dict[str, str]) -> Any:
+    """Calls the library on temporary files; messages name the DataFrames,
+    not the temporary files (line N of a DataFrame is row N - 2, the header
     being line 1)."""
     try:
-        _regionkey.run_command(args)
+        return function(*args)
     except RegionkeyError as e:
         message = str(e)
         for path, name in names.items():
@@ -364,46 +364,37 @@ def apply(
     try:
         data_path = os.path.join(workdir, "data.csv")
         pacsv.write_csv(table, data_path)
-        args: List[str] = [
-            "apply",
-            data_path,
-            "--code-column",
-            code_column,
-            "--min-coverage",
-            repr(float(min_coverage)),
-        ]
-        if decimals is not None:
-            args += ["--decimals", str(decimals)]
+        cw_path = None
         if crosswalk is not None:
             if isinstance(crosswalk, (str, os.PathLike)):
                 cw_path = os.fspath(crosswalk)
             else:
                 cw_path = os.path.join(workdir, "crosswalk.csv")
                 pacsv.write_csv(_to_arrow(crosswalk), cw_path)
-            args += ["--crosswalk", cw_path]
-        if to_vintage is not None:
-            args += ["--to-vintage", str(to_vintage)]
-        if state_column is not None:
-            args += ["--state-column", state_column]
-        if period_column is not None:
-            args += ["--period-column", period_column]
-        for c in sum:
-            args += ["--sum", c]
         ratios = [f"{k}={v}" for k, v in ratio.items()] if isinstance(ratio, dict) else list(ratio)
-        for r in ratios:
-            args += ["--ratio", r]
-        for m in mean:
-            args += ["--mean", m]
-        for m in missing:
-            args += ["--missing", m]
-        if all_units:
-            args.append("--all-units")
         out_path = os.path.join(workdir, "result.csv")
         report_path = os.path.join(workdir, "report.csv")
-        args += ["--output", out_path]
-        if report:
-            args += ["--report", report_path]
-        _run(args, {data_path: "the DataFrame", os.path.join(workdir, "crosswalk.csv"): "the crosswalk DataFrame"})
+        _call(
+            _regionkey.apply_files,
+            (
+                data_path,
+                cw_path,
+                to_vintage,
+                code_column,
+                state_column,
+                period_column,
+                list(sum),
+                ratios,
+                list(mean),
+                float(min_coverage),
+                decimals,
+                list(missing),
+                bool(all_units),
+                out_path,
+                report_path if report else None,
+            ),
+            {data_path: "the DataFrame", os.path.join(workdir, "crosswalk.csv"): "the crosswalk DataFrame"},
+        )
         text = [code_column, "code_name", "rk_code_name"] + ([period_column] if period_column else [])
         result = _read_result(out_path, [c for c in text if c])
         result = result.replace_schema_metadata({"caution": CAUTION})
@@ -503,35 +494,44 @@ def overlay(
     Layers are GeoJSON, TopoJSON or Shapefile paths, or the built-in
     ``"builtin:counties-2017"`` and ``"builtin:counties-2023"``. Returns a
     DataFrame (pandas, or polars with ``as_polars=True``) with ``from_code,
-    to_code, weight, target_share, basis``, as ``regionkey overlay`` writes
-    it. Weights are shares of the source by area on the WGS84 ellipsoid (or
-    by population with ``weight="population"``).
+    to_code, weight, target_share, basis``, the rows ``regionkey overlay``
+    writes (here unrounded; the file has 12 decimals). Weights are shares of
+    the source by area on the WGS84 ellipsoid (or by population with
+    ``weight="population"``).
 
     >>> import regionkey
     >>> cw = regionkey.overlay("builtin:counties-2017", "builtin:counties-2023")
     >>> cw[cw["from_code"] == "09003"]["to_code"].tolist()
     ['09110', '09140', '09160', '09170']
     """
+    if weight not in ("area", "population"):
+        raise RegionkeyError(f'weight {weight!r}: choose "area" or "population"')
     workdir = tempfile.mkdtemp(prefix="regionkey-")
     try:
-        out_path = os.path.join(workdir, "crosswalk.csv")
-        args: List[str] = ["overlay", os.fspath(from_layer), os.fspath(to_layer)]
-        for flag, value in [
-            ("--from-key", from_key),
-            ("--to-key", to_key),
-            ("--from-object", from_object),
-            ("--to-object", to_object),
-            ("--population", os.fspath(population) if population is not None else None),
-            ("--population-field", population_field),
-        ]:
-            if value is not None:
-                args += [flag, value]
-        args += ["--weight", weight]
-        if min_share is not None:
-            args += ["--min-share", repr(float(min_share))]
-        args += ["--output", out_path]
-        _regionkey.run_command(args)
-        table = _read_result(out_path, ["from_code", "to_code", "basis"], figures=False)
+        # The library writes the crosswalk file and its sidecar (they are
+        # dropped); the columns come back from memory.
+        columns = _regionkey.overlay_layers(
+            os.fspath(from_layer),
+            os.fspath(to_layer),
+            from_key,
+            to_key,
+            from_object,
+            to_object,
+            weight,
+            os.fspath(population) if population is not None else None,
+            population_field,
+            float(min_share) if min_share is not None else None,
+            os.path.join(workdir, "crosswalk.csv"),
+        )
+        table = pa.table(
+            {
+                "from_code": pa.array(columns["from_code"], type=pa.string()),
+                "to_code": pa.array(columns["to_code"], type=pa.string()),
+                "weight": pa.array(columns["weight"], type=pa.float64()),
+                "target_share": pa.array(columns["target_share"], type=pa.float64()),
+                "basis": pa.array(columns["basis"], type=pa.string()),
+            }
+        )
         return _from_arrow(table, "polars" if as_polars else "pandas")
     finally:
         shutil.rmtree(workdir, ignore_errors=True)

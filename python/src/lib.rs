@@ -414,28 +414,159 @@ fn reference_table<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDic
     Ok(d)
 }
 
-/// `run_command(args)`: runs `regionkey apply` or `regionkey overlay` on
-/// files (`args` as the command line would give them, without the program
-/// name), until these steps have an in-memory library entry.
-fn run_command(args: &Bound<'_, PyTuple>) -> PyResult<()> {
-    use clap::Parser;
+/// `apply_files(data, crosswalk, to_vintage, code_column, state_column,
+/// period_column, sums, ratios, means, min_coverage, decimals, missing,
+/// all_units, output, report)`: `regionkey apply` through the library: its
+/// checked configuration ([`apply::Config::from_args`]) and [`apply::execute`],
+/// on a data file and a crosswalk file (or `None` with `to_vintage`),
+/// writing the results (and the report, if a path is given). Returns the
+/// rows read and allocated.
+fn apply_files(args: &Bound<'_, PyTuple>) -> PyResult<(u64, u64)> {
+    use regionkey::cli::{apply, group::WeightBy};
+    let a = apply::Args {
+        data: PathBuf::from(arg::<String>(args, 0)?),
+        crosswalk: arg::<Option<String>>(args, 1)?.map(PathBuf::from),
+        to_vintage: arg(args, 2)?,
+        code_column: arg(args, 3)?,
+        state_column: arg(args, 4)?,
+        period_column: arg(args, 5)?,
+        sums: arg(args, 6)?,
+        ratios: arg(args, 7)?,
+        means: arg(args, 8)?,
+        min_coverage: arg(args, 9)?,
+        decimals: arg(args, 10)?,
+        separator: None,
+        missing: arg(args, 11)?,
+        allow_name: Vec::new(),
+        all_units: arg(args, 12)?,
+        skip_unweighted: false,
+        output: arg(args, 13)?,
+        report: arg::<Option<String>>(args, 14)?.map(PathBuf::from),
+        emit_sql: None,
+        sql_tables: "data,crosswalk".into(),
+        split_by: WeightBy::Area,
+        population: None,
+    };
+    let report = args
+        .py()
+        .detach(|| apply::Config::from_args(&a).and_then(|c| apply::execute(&c)))
+        .map_err(py_err)?;
+    Ok((report.rows, report.rows_allocated))
+}
+
+/// `overlay_layers(from, to, from_key, to_key, from_object, to_object,
+/// weight, population, population_field, min_share, output)`: `regionkey
+/// overlay` through the library: a [`overlay::Config`] made here (the
+/// checks of the command's options repeated) and [`overlay::execute`],
+/// which writes the crosswalk file and its sidecar to `output`. Returns the
+/// crosswalk's columns (from_code, to_code, weight, target_share, basis)
+/// from memory, unrounded.
+fn overlay_layers<'py>(args: &Bound<'py, PyTuple>) -> PyResult<Bound<'py, PyDict>> {
+    use regionkey::cli::overlay;
+    use regionkey::io::geo::{LayerRequest, RepeatedKeys};
+    use regionkey::io::output::Target;
     let py = args.py();
-    let args: Vec<String> = arg(args, 0)?;
-    let argv = std::iter::once("regionkey".to_string()).chain(args);
-    let cli = regionkey::cli::Cli::try_parse_from(argv)
-        .map_err(|e| RegionkeyError::new_err(e.to_string()))?;
-    let global = regionkey::cli::Global { quiet: true };
-    py.detach(|| {
-        use regionkey::cli::{apply, overlay, Command};
-        match cli.command {
-            Command::Apply(a) => apply::run(a, global),
-            Command::Overlay(a) => overlay::run(a, global),
-            _ => Err(Error::Usage(
-                "only apply and overlay run through run_command".into(),
-            )),
+    let from: String = arg(args, 0)?;
+    let to: String = arg(args, 1)?;
+    let weight: String = arg(args, 6)?;
+    let population: Option<String> = arg(args, 7)?;
+    let field: Option<String> = arg(args, 8)?;
+    let min_share: Option<f64> = arg(args, 9)?;
+    let min_share = min_share.unwrap_or(regionkey::core::overlay::DEFAULT_MIN_SHARE);
+    if !(0.0..0.5).contains(&min_share) {
+        return Err(RegionkeyError::new_err(format!(
+            "--min-share {min_share} is out of range; give a share from 0 (keep everything) up to below 0.5"
+        )));
+    }
+    let population = match (weight.as_str(), population, field) {
+        ("population", Some(p), Some(f)) => Some((p, f)),
+        ("population", None, _) => {
+            return Err(RegionkeyError::new_err(
+                "--weight population needs --population LAYER and --population-field FIELD",
+            ))
         }
-    })
-    .map_err(py_err)
+        ("population", Some(_), None) => {
+            return Err(RegionkeyError::new_err(
+                "--population needs --population-field FIELD (the count column)",
+            ))
+        }
+        ("area", None, None) => None,
+        ("area", _, _) => {
+            return Err(RegionkeyError::new_err(
+                "--population is used only with --weight population",
+            ))
+        }
+        (other, _, _) => {
+            return Err(RegionkeyError::new_err(format!(
+                "weight {other:?}: choose \"area\" or \"population\""
+            )))
+        }
+    };
+    let label = |spec: &str| -> String {
+        match spec.strip_prefix("builtin:") {
+            Some(b) => b.to_string(),
+            None => std::path::Path::new(spec)
+                .file_stem()
+                .map(|n| {
+                    n.to_string_lossy()
+                        .split('.')
+                        .next()
+                        .unwrap_or("")
+                        .to_string()
+                })
+                .unwrap_or_default(),
+        }
+    };
+    let config = overlay::Config {
+        from_label: label(&from),
+        to_label: label(&to),
+        from: LayerRequest {
+            spec: from,
+            key: arg(args, 2)?,
+            object: arg(args, 4)?,
+            key_option: "--from-key",
+            object_option: "--from-object",
+        },
+        to: LayerRequest {
+            spec: to,
+            key: arg(args, 3)?,
+            object: arg(args, 5)?,
+            key_option: "--to-key",
+            object_option: "--to-object",
+        },
+        population,
+        min_share,
+        parent_digits: None,
+        repeated: RepeatedKeys::Merge,
+        quiet: true,
+        output: Target::File(PathBuf::from(arg::<String>(args, 10)?)),
+        report: None,
+    };
+    let report = py.detach(|| overlay::execute(&config)).map_err(py_err)?;
+    let rows = &report.crosswalk.rows;
+    let d = PyDict::new(py);
+    d.set_item(
+        "from_code",
+        rows.iter()
+            .map(|r| r.from_code.as_str())
+            .collect::<Vec<_>>(),
+    )?;
+    d.set_item(
+        "to_code",
+        rows.iter()
+            .map(|r| r.to_code.as_deref())
+            .collect::<Vec<_>>(),
+    )?;
+    d.set_item("weight", rows.iter().map(|r| r.weight).collect::<Vec<_>>())?;
+    d.set_item(
+        "target_share",
+        rows.iter().map(|r| r.target_share).collect::<Vec<_>>(),
+    )?;
+    d.set_item(
+        "basis",
+        rows.iter().map(|r| r.basis.as_str()).collect::<Vec<_>>(),
+    )?;
+    Ok(d)
 }
 
 /// `sql_query(dialect, data_table, crosswalk_table, has_origin, code_column,
@@ -549,7 +680,10 @@ fn module(py: Python<'_>) -> PyResult<Bound<'_, PyModule>> {
     add(&m, c"reference_table", |a| {
         reference_table(a).map(|d| d.unbind())
     })?;
-    add(&m, c"run_command", run_command)?;
+    add(&m, c"apply_files", apply_files)?;
+    add(&m, c"overlay_layers", |a| {
+        overlay_layers(a).map(|d| d.unbind())
+    })?;
     add(&m, c"sql_query", sql_query)?;
     m.add("CAUTION", regionkey::cli::apply::CAUTION)?;
     Ok(m)

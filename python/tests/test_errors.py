@@ -106,3 +106,19 @@ def test_history_of_an_unknown_name_is_an_error():
 def test_something_that_is_not_a_dataframe_is_a_type_error():
     with pytest.raises(TypeError, match="pandas or polars"):
         regionkey.match([["Cook"]], name_column="county")
+
+
+def test_overlay_options_are_refused_with_the_commands_words():
+    # The package builds overlay's configuration itself (no command line):
+    # its refusals must still be the command's.
+    done = run("overlay", "builtin:counties-2017", "builtin:counties-2023",
+               "--weight", "population", "--output", "-", check=False)
+    assert done.returncode != 0
+    with pytest.raises(regionkey.RegionkeyError) as e:
+        regionkey.overlay("builtin:counties-2017", "builtin:counties-2023", weight="population")
+    assert str(e.value) in done.stderr
+    done = run("overlay", "builtin:counties-2017", "builtin:counties-2023",
+               "--min-share", "0.7", "--output", "-", check=False)
+    with pytest.raises(regionkey.RegionkeyError) as e:
+        regionkey.overlay("builtin:counties-2017", "builtin:counties-2023", min_share=0.7)
+    assert str(e.value) in done.stderr

@@ -750,10 +750,19 @@ fn summarize(
         .map(|(k, v)| format!("{k} {v}"))
         .collect();
     let _ = writeln!(s, "   By method: {}.", methods.join(", "));
+    // The review file keeps decided names with their decision, so a later
+    // run can take it back as is; only names without a `chosen_code` are open.
+    let chosen = remaining.column("chosen_code")?;
+    let open = remaining
+        .records
+        .iter()
+        .filter(|r| r[chosen].trim().is_empty())
+        .count();
     let _ = writeln!(
         s,
-        "   Still on the review list (review.csv): {} names.",
-        remaining.len()
+        "   Review list (review.csv): {} names, {} decided (chosen_code), {open} still open.",
+        remaining.len(),
+        remaining.len() - open
     );
     let _ = writeln!(s);
     let _ = writeln!(

@@ -61,15 +61,9 @@ pub fn column_names(spec: &DataSpec) -> Result<Vec<String>> {
     if is_parquet(path, &head[..n]) {
         crate::io::guard::parquet::check_file(path)?;
         let mut reader = ParquetReader::new(file);
-        let damaged = || {
-            Error::input(
-                Location::file(path),
-                "cannot read as Parquet: the file is damaged, truncated or not Parquet",
-            )
-        };
         let schema = crate::io::guard::catch(|| reader.schema())
-            .map_err(|_| damaged())?
-            .map_err(|_| damaged())?;
+            .map_err(|_| parquet_stopped(path))?
+            .map_err(|_| parquet_damaged(path))?;
         return Ok(schema.iter_names().map(|n| n.to_string()).collect());
     }
     let line = first_line(path)?;
@@ -292,6 +286,23 @@ pub fn read(spec: &DataSpec) -> Result<DataTable> {
     })
 }
 
+/// A Parquet file the decoder refused.
+fn parquet_damaged(path: &Path) -> Error {
+    Error::input(
+        Location::file(path),
+        "cannot read as Parquet: the file is damaged, truncated or not Parquet",
+    )
+}
+
+/// A Parquet file on which the decoder panicked (caught by the guard);
+/// worded as the table reader words it.
+fn parquet_stopped(path: &Path) -> Error {
+    Error::input(
+        Location::file(path),
+        "cannot read as Parquet: the file is damaged (its decoder stopped)",
+    )
+}
+
 /// Reads the columns `spec` names from a Parquet file already checked by
 /// [`crate::io::guard::parquet`]; a panic of the decoder is caught.
 fn read_parquet(
@@ -300,16 +311,10 @@ fn read_parquet(
     text_columns: &[&String],
 ) -> Result<DataFrame> {
     let path = &spec.path;
-    let damaged = || {
-        Error::input(
-            Location::file(path),
-            "cannot read as Parquet: the file is damaged, truncated or not Parquet",
-        )
-    };
     let mut reader = ParquetReader::new(file);
     let names: Vec<String> = crate::io::guard::catch(|| reader.schema())
-        .map_err(|_| damaged())?
-        .map_err(|_| damaged())?
+        .map_err(|_| parquet_stopped(path))?
+        .map_err(|_| parquet_damaged(path))?
         .iter_names()
         .map(|n| n.to_string())
         .collect();
@@ -322,8 +327,8 @@ fn read_parquet(
     let file_values: Vec<String> = spec.value_columns.iter().map(find).collect::<Result<_>>()?;
     let all: Vec<String> = file_text.iter().chain(&file_values).cloned().collect();
     let df = crate::io::guard::catch(|| reader.with_columns(Some(all)).finish())
-        .map_err(|_| damaged())?
-        .map_err(|_| damaged())?;
+        .map_err(|_| parquet_stopped(path))?
+        .map_err(|_| parquet_damaged(path))?;
     let mut columns = Vec::new();
     for (name, file_name) in text_columns.iter().zip(&file_text) {
         let c = df.column(file_name).map_err(|e| polars_error(path, e))?;

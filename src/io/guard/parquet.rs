@@ -413,7 +413,13 @@ fn read_file_meta(c: &mut Compact) -> Parse<FileMeta> {
                 let mut e = SchemaElement::default();
                 c.fields(|c, id, ty| {
                     match id {
-                        3 => e.repetition = Some(c.i32_of(ty)?),
+                        3 => {
+                            let r = c.i32_of(ty)?;
+                            if !(0..=2).contains(&r) {
+                                return Err(Fault::Bad("an unknown repetition"));
+                            }
+                            e.repetition = Some(r);
+                        }
                         4 => e.name = c.text_of(ty)?,
                         5 => e.num_children = Some(c.i32_of(ty)?),
                         _ => return Ok(false),
@@ -469,8 +475,18 @@ fn read_column_chunk(c: &mut Compact) -> Parse<ColumnChunk> {
                         5 => m.num_values = Some(c.i64_of(ty)?),
                         6 => m.total_uncompressed = Some(c.i64_of(ty)?),
                         7 => m.total_compressed = Some(c.i64_of(ty)?),
+                        2 => {
+                            if ty != T_LIST && ty != T_SET {
+                                return Err(Fault::Bad("a field of the wrong type"));
+                            }
+                            let (n, et) = c.list_header()?;
+                            for _ in 0..n {
+                                encoding(c.i32_of(et)?)?;
+                            }
+                        }
                         9 => m.data_page_offset = Some(c.i64_of(ty)?),
                         11 => m.dictionary_page_offset = Some(c.i64_of(ty)?),
+                        12 => statistics(c, ty)?,
                         _ => return Ok(false),
                     }
                     Ok(true)
@@ -508,17 +524,22 @@ fn read_page_header(c: &mut Compact) -> Parse<PageHeader> {
             1 => h.page_type = Some(c.i32_of(ty)?),
             2 => h.uncompressed = Some(c.i32_of(ty)?),
             3 => h.compressed = Some(c.i32_of(ty)?),
-            // Data page (v1) and dictionary page: the value count is field 1.
+            // Data page (v1): values, encodings of values and levels,
+            // statistics. Dictionary page: values, encoding.
             5 | 7 => {
                 if ty != T_STRUCT {
                     return Err(Fault::Bad("a field of the wrong type"));
                 }
+                let data_page = id == 5;
                 c.fields(|c, id, ty| {
-                    if id == 1 {
-                        h.num_values = Some(c.i32_of(ty)?);
-                        return Ok(true);
+                    match id {
+                        1 => h.num_values = Some(c.i32_of(ty)?),
+                        2 => encoding(c.i32_of(ty)?)?,
+                        3 | 4 if data_page => encoding(c.i32_of(ty)?)?,
+                        5 if data_page => statistics(c, ty)?,
+                        _ => return Ok(false),
                     }
-                    Ok(false)
+                    Ok(true)
                 })?;
             }
             8 => {
@@ -537,7 +558,9 @@ fn read_page_header(c: &mut Compact) -> Parse<PageHeader> {
                             }
                             h.levels_bytes += v;
                         }
+                        4 => encoding(c.i32_of(ty)?)?,
                         7 => h.is_compressed = c.bool_of(ty)?,
+                        8 => statistics(c, ty)?,
                         _ => return Ok(false),
                     }
                     Ok(true)
@@ -548,6 +571,29 @@ fn read_page_header(c: &mut Compact) -> Parse<PageHeader> {
         Ok(true)
     })?;
     Ok(h)
+}
+
+/// An encoding of the format's `Encoding` enum that a page may name:
+/// PLAIN (0), PLAIN_DICTIONARY (2), RLE (3), BIT_PACKED (4),
+/// DELTA_BINARY_PACKED (5), DELTA_LENGTH_BYTE_ARRAY (6), DELTA_BYTE_ARRAY
+/// (7), RLE_DICTIONARY (8), BYTE_STREAM_SPLIT (9). Value 1 was never used.
+fn encoding(value: i64) -> Parse<()> {
+    match value {
+        0 | 2..=9 => Ok(()),
+        _ => Err(Fault::Bad("an unknown encoding")),
+    }
+}
+
+/// A `Statistics` struct: skipped, except that its fields 7 and 8
+/// (`is_max_value_exact`, `is_min_value_exact`) must be booleans.
+fn statistics(c: &mut Compact, ty: u8) -> Parse<()> {
+    if ty != T_STRUCT {
+        return Err(Fault::Bad("a field of the wrong type"));
+    }
+    c.fields(|c, id, ty| match id {
+        7 | 8 => c.bool_of(ty).map(|_| true),
+        _ => Ok(false),
+    })
 }
 
 // ---------------------------------------------------------------------------
@@ -909,7 +955,7 @@ fn check_chunk(
                     )));
                 }
             }
-            1 => {}
+            1 => return Err(at("is an index page, which no reader uses".into())),
             other => return Err(at(format!("is of unknown type {other}"))),
         }
         pos = body + c;
