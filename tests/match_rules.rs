@@ -389,7 +389,28 @@ fn sampled_typo_sweep_of_user_lists_accepts_no_wrong_unit() {
 
 /// The whole sweep: every unit of the built-in reference (with its state
 /// and without one) and of the three user lists, every one-edit variant and
-/// 100 seeded two-edit variants per unit. Minutes in a release build.
+/// 100 seeded two-edit variants per unit. About 23 minutes (38 CPU minutes)
+/// in a release build on two cores.
+///
+/// Last run (2026-12-03), variants: accepted right / tied / deferred / wrong
+/// * built-in counties 2023, one edit: 2,529,322: 1,577,081 / 302 / 951,929 / 10
+/// * built-in counties 2023, two edits: 647,000: 172,722 / 63 / 474,205 / 10
+/// * it-provinces, one edit: 104,506: 59,045 / 0 / 45,461 / 0; two: 9,400: 3,554 / 0 / 5,846 / 0
+/// * fr-departements, one edit: 45,697: 43,568 / 0 / 2,129 / 0; two: 9,500: 5,307 / 0 / 4,193 / 0
+/// * us-places, one edit: 1,768,393: 1,738,085 / 6 / 30,299 / 3; two: 340,700: 246,591 / 24 / 94,084 / 1
+///
+/// So the test fails: 24 variants whose nearest unit is unique were matched
+/// to another unit. None comes from the typo rule alone; they are variants
+/// that other rules read as another unit's written form: a state written in
+/// the name ("mo daviess", "ne york" read as MO / NE + a county), a
+/// description abbreviation ("carson cty", "charles cnty" read as Carson
+/// County, TX and Charles County, MD; "manassas par" as Manassas city with a
+/// "parish" that is noise; "kapolei village", "huntington saion"), a
+/// misspelled description that is also one edit from a word of the names
+/// ("count lebanon", "mounty lebanon" read as "County Lebanon" where Mount
+/// Lebanon is one edit away), an alias ("nyc"), and "grn" in Indiana
+/// accepted as Greene where Grant is nearer. Still to fix: such a reading
+/// should go to review when a unit is one edit from the written name.
 #[test]
 #[ignore]
 fn full_sweep_of_one_and_two_edit_variants() {
