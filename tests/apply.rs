@@ -4,38 +4,12 @@
 //! unemployment rates from BLS LAUS; see fixtures/apply/README.md).
 
 use std::collections::BTreeMap;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
-use assert_cmd::Command;
 use predicates::prelude::*;
 
-fn regionkey() -> Command {
-    Command::cargo_bin("regionkey").unwrap()
-}
-
-fn write(dir: &Path, name: &str, text: &str) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
-
-/// A CSV row: column -> text.
-type Row = BTreeMap<String, String>;
-
-/// Reads a CSV into rows of (column -> text).
-fn read_rows(path: &Path) -> Vec<BTreeMap<String, String>> {
-    let mut r = csv::Reader::from_path(path).unwrap();
-    let headers = r.headers().unwrap().clone();
-    r.records()
-        .map(|rec| {
-            headers
-                .iter()
-                .zip(rec.unwrap().iter())
-                .map(|(h, v)| (h.to_string(), v.to_string()))
-                .collect()
-        })
-        .collect()
-}
+mod common;
+use common::{num, read_rows, regionkey, write, Row};
 
 fn find<'a>(
     rows: &'a [BTreeMap<String, String>],
@@ -50,12 +24,6 @@ fn find<'a>(
                 && period.is_none_or(|p| r["year"] == p)
         })
         .unwrap_or_else(|| panic!("no row for {code} {period:?}"))
-}
-
-fn num(row: &BTreeMap<String, String>, col: &str) -> f64 {
-    row[col]
-        .parse()
-        .unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
 }
 
 /// Sources A, B, C onto X and Y (hand-made):

@@ -498,7 +498,7 @@ pub fn run(args: Args, global: Global) -> Result<()> {
     for w in &done.warnings {
         warn(w);
     }
-    for line in match_summary(&done) {
+    for line in super::match_names::summary_lines(&done) {
         say(global, line);
     }
 
@@ -645,38 +645,6 @@ fn match_args(
         distinct_keys: None,
         delimiter: None,
     }
-}
-
-/// What the match step did, in the words of `regionkey match`'s summary.
-fn match_summary(report: &super::match_names::Report) -> Vec<String> {
-    use crate::core::matcher::Status;
-    let t = &report.tally;
-    let n = |s| t.by_status.get(&s).copied().unwrap_or(0);
-    let methods: Vec<String> = t
-        .by_method
-        .iter()
-        .map(|(m, c)| format!("{} {c}", m.as_str()))
-        .collect();
-    let mut lines = vec![
-        format!(
-            "regionkey match: {} rows, {} distinct names",
-            t.rows, t.names
-        ),
-        format!(
-            "  matched   {} ({})",
-            n(Status::Matched),
-            methods.join(", ")
-        ),
-        format!("  review    {}", n(Status::Review)),
-        format!("  unmatched {}", n(Status::Unmatched)),
-    ];
-    if t.decisions > 0 {
-        lines.push(format!(
-            "  decisions used: {} of {}",
-            t.decisions_used, t.decisions
-        ));
-    }
-    lines
 }
 
 fn count_by(path: &Path, column: &str) -> Result<BTreeMap<String, usize>> {

@@ -596,6 +596,13 @@ pub fn run(args: Args, global: Global) -> Result<()> {
 }
 
 fn summarize(global: Global, report: &Report) {
+    for line in summary_lines(report) {
+        say(global, line);
+    }
+}
+
+/// The run's summary as the command prints it on stderr (the demo quotes it).
+pub fn summary_lines(report: &Report) -> Vec<String> {
     let t = &report.tally;
     let n = |s| t.by_status.get(&s).copied().unwrap_or(0);
     let methods: Vec<String> = t
@@ -603,39 +610,33 @@ fn summarize(global: Global, report: &Report) {
         .iter()
         .map(|(m, c)| format!("{} {c}", m.as_str()))
         .collect();
-    say(
-        global,
+    let mut lines = vec![
         format!(
             "regionkey match: {} rows, {} distinct names",
             t.rows, t.names
         ),
-    );
-    say(
-        global,
         format!(
             "  matched   {} ({})",
             n(Status::Matched),
             methods.join(", ")
         ),
-    );
-    say(global, format!("  review    {}", n(Status::Review)));
-    say(global, format!("  unmatched {}", n(Status::Unmatched)));
+        format!("  review    {}", n(Status::Review)),
+        format!("  unmatched {}", n(Status::Unmatched)),
+    ];
     if t.decisions > 0 {
-        say(
-            global,
-            format!("  decisions used: {} of {}", t.decisions_used, t.decisions),
-        );
+        lines.push(format!(
+            "  decisions used: {} of {}",
+            t.decisions_used, t.decisions
+        ));
     }
     if let Some(k) = report.distinct_keys {
-        say(global, format!("  distinct keys written: {k}"));
+        lines.push(format!("  distinct keys written: {k}"));
     }
     if t.open > 0 && !report.review_written {
-        say(
-            global,
-            format!(
-                "  {} distinct names need a decision; write them out with --review FILE",
-                t.open
-            ),
-        );
+        lines.push(format!(
+            "  {} distinct names need a decision; write them out with --review FILE",
+            t.open
+        ));
     }
+    lines
 }
