@@ -156,8 +156,9 @@ struct SweepUnit {
     parent: Option<String>,
 }
 
-/// Every name of the block (any era), keyed, with the code the matcher
-/// gives that exact name (names of another era lead to their successor).
+/// Every name and alias of the block (any era), keyed, with the code the
+/// matcher gives that exact name (names of another era lead to their
+/// successor).
 struct Block {
     keys: Vec<(String, String)>,
 }
@@ -181,6 +182,20 @@ fn blocks(m: &Matcher, reference: &Reference) -> BTreeMap<Option<String>, Block>
             .keys
             .push((k.clone(), code.clone()));
         national.keys.push((k, code));
+    }
+    // An alias is a written form of its unit or units ("NYC" is New York
+    // City): a variant that is exactly an alias is that alias's unit.
+    for a in &reference.aliases {
+        let first = a.code.split('+').next().unwrap_or_default();
+        let Some(unit) = reference.units.iter().find(|u| u.code == first) else {
+            continue;
+        };
+        let k = key(&a.alias);
+        out.entry(unit.parent.clone())
+            .or_insert_with(|| Block { keys: Vec::new() })
+            .keys
+            .push((k.clone(), a.code.clone()));
+        national.keys.push((k, a.code.clone()));
     }
     out.insert(None, national);
     out
@@ -632,4 +647,31 @@ fn a_users_list_learns_its_description_words() {
     ] {
         assert_eq!(code(&m, name, None).as_deref(), Some("IT-RM"), "{name}");
     }
+}
+
+#[test]
+fn a_reading_gives_way_to_a_unit_written_nearer_to_the_name() {
+    // Codes: Census Bureau county list (reference/us/counties.csv). Each
+    // name below is one edit from one unit's own name, while another rule
+    // (a description abbreviation, a state written in the name) would read
+    // it as another unit: found by the full typo sweep.
+    let m = builtin();
+    for (name, state, near, read) in [
+        ("Carson Cty", None, "32510", "48065"), // Carson City / Carson County, TX
+        ("Charles Cnty", None, "51036", "24017"), // Charles City / Charles County, MD
+        ("Mo Daviess", None, "17085", "29061"), // Jo Daviess / Daviess County, MO
+        ("Manassas Par", Some("VA"), "51685", "51683"), // Manassas Park / Manassas
+    ] {
+        let r = m.resolve(name, state);
+        assert_eq!(r.status, Status::Review, "{name}: {r:?}");
+        let codes: Vec<&str> = r.candidates.iter().map(|c| c.code.as_str()).collect();
+        assert!(codes.contains(&near), "{name}: {codes:?}");
+        assert!(codes.contains(&read), "{name}: {codes:?}");
+    }
+    // A state set off by a comma is not part of the name as typed: "Ada,
+    // ID" is Ada County, although "adaid" is one edit from Adair.
+    assert_eq!(code(&m, "Ada, ID", None).as_deref(), Some("16001"));
+    // A name written exactly as a unit's form keeps its reading.
+    assert_eq!(code(&m, "Carson City", None).as_deref(), Some("32510"));
+    assert_eq!(code(&m, "Dekalb Co.", Some("GA")).as_deref(), Some("13089"));
 }

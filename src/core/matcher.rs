@@ -465,6 +465,37 @@ pub struct Matcher<'r> {
     changes_to: HashMap<String, Vec<&'r Change>>,
     /// Named composites: aliases whose code is several codes joined by `+`.
     composites: NamedComposites,
+    /// Written forms of every unit (name, full name and aliases, every
+    /// era) for the nearer-name check, by parent (`None`: all of them).
+    near_forms: HashMap<Option<String>, Vec<NearForm>>,
+}
+
+/// One written form of a unit, for [`Matcher::nearer_form`].
+#[derive(Debug, Clone)]
+struct NearForm {
+    /// Compact key of the form.
+    key: String,
+    /// Its length in characters.
+    len: usize,
+    /// The letters it uses (see [`letter_set`]).
+    letters: u64,
+    /// The entry it names.
+    entry: usize,
+}
+
+/// The set of characters of a key as bits (a-z, 0-9, one bit for any
+/// other). An edit adds or removes at most one character of each key's
+/// set, so keys whose sets differ in more than `2 * d` characters are more
+/// than `d` edits apart: a cheap test before counting edits.
+fn letter_set(key: &str) -> u64 {
+    key.chars().fold(0, |set, c| {
+        let bit = match c {
+            'a'..='z' => c as u32 - 'a' as u32,
+            '0'..='9' => 26 + c as u32 - '0' as u32,
+            _ => 36,
+        };
+        set | (1 << bit)
+    })
 }
 
 impl<'r> Matcher<'r> {
@@ -589,6 +620,7 @@ impl<'r> Matcher<'r> {
             changes_from: HashMap::new(),
             changes_to: HashMap::new(),
             composites: NamedComposites::default(),
+            near_forms: HashMap::new(),
         };
         for (u, words) in reference.units.iter().zip(unit_words) {
             let desc = key(&u.description);
@@ -671,7 +703,45 @@ impl<'r> Matcher<'r> {
         m.composites = composite::from_aliases(&reference.aliases, |c| {
             m.by_code.get(c).and_then(|&i| m.entries[i].parent.clone())
         });
+        m.near_forms = m.index_near_forms(reference);
         m
+    }
+
+    /// The written forms of every unit for [`Matcher::nearer_form`]: the
+    /// name, the full name and the aliases of every entry of every era.
+    fn index_near_forms(&self, reference: &Reference) -> HashMap<Option<String>, Vec<NearForm>> {
+        let mut forms: Vec<(String, usize)> = Vec::new();
+        for (i, e) in self.entries.iter().enumerate() {
+            forms.push((key(&e.name), i));
+            forms.push((key(&e.full_name), i));
+            if e.learned {
+                forms.push((e.bare.clone(), i));
+            }
+        }
+        for a in &reference.aliases {
+            if let Some(&i) = self.by_code.get(&a.code) {
+                forms.push((key(&a.alias), i));
+            }
+        }
+        forms.sort_unstable();
+        forms.dedup();
+        let mut out: HashMap<Option<String>, Vec<NearForm>> = HashMap::new();
+        for (k, i) in forms {
+            if k.is_empty() {
+                continue;
+            }
+            let form = NearForm {
+                len: k.chars().count(),
+                letters: letter_set(&k),
+                key: k,
+                entry: i,
+            };
+            if let Some(p) = &self.entries[i].parent {
+                out.entry(Some(p.clone())).or_default().push(form.clone());
+            }
+            out.entry(None).or_default().push(form);
+        }
+        out
     }
 
     /// Registers the written forms of `p` (name, short code,
@@ -845,7 +915,176 @@ impl<'r> Matcher<'r> {
     /// composite ([`composite::read`]).
     pub fn resolve(&self, name: &str, state: Option<&str>) -> Resolution {
         let whole = self.resolve_single(name, state);
-        composite::read(self, &self.composites, name, state, &whole).unwrap_or(whole)
+        let r = composite::read(self, &self.composites, name, state, &whole).unwrap_or(whole);
+        self.nearer_form(name, state, r)
+    }
+
+    /// A match made by reading the name other than as written (a state or
+    /// description in it, an abbreviation, a misspelling, another era)
+    /// stands only if no other unit is written nearer to the name as
+    /// typed: "Carson Cty" read as Carson County, TX is one edit from
+    /// Carson City; "Mo Daviess" read as Daviess County, MO is one edit
+    /// from Jo Daviess. Such a name goes to review with both. Forms are
+    /// compared within two edits; a state set off by a comma ("Ada, ID")
+    /// is not part of the name as typed. A name written exactly as some
+    /// unit's form is left to the other rules.
+    fn nearer_form(&self, name: &str, state: Option<&str>, r: Resolution) -> Resolution {
+        const CAP: usize = 2;
+        if r.status != Status::Matched
+            || !matches!(
+                r.method,
+                Some(Method::Variant | Method::Fuzzy | Method::History)
+            )
+        {
+            return r;
+        }
+        let Some(code) = r.code.clone() else {
+            return r;
+        };
+        let mut words = tokens(name);
+        // A state set off by a separator ("Ada, ID", "MN - Cook County") is
+        // not part of the name as typed; it names the block like a state
+        // column.
+        let mut block = state.and_then(|s| self.parent_of(s));
+        let mut written_state = None;
+        for k in (1..=4.min(words.len().saturating_sub(1))).rev() {
+            let n = words.len();
+            if words[n - k].after_separator {
+                if let Some(p) = self.parents.get(&compact(&words[n - k..])) {
+                    written_state = Some(p.clone());
+                    words.truncate(n - k);
+                    break;
+                }
+            }
+            if words[k].after_separator {
+                if let Some(p) = self.parents.get(&compact(&words[..k])) {
+                    written_state = Some(p.clone());
+                    words.drain(..k);
+                    break;
+                }
+            }
+        }
+        if block.is_none() {
+            block = written_state;
+        }
+        let typed = compact(&words);
+        let len = typed.chars().count();
+        if len == 0 || len > 64 {
+            return r;
+        }
+        let letters = letter_set(&typed);
+        // Written so, a form of the matched unit leaves no doubt: the name
+        // with its abbreviated words read ("W. Hartford" is West Hartford,
+        // although "whartford" is one edit from Hartford).
+        let rewritten = compact(&self.rewritten(words.clone()));
+        // The name without a description written in full ("Marion city",
+        // "Provincia di Roma") is evidence too: then only a unit one edit
+        // from the name as typed outweighs it ("Kapolei Village" is one
+        // edit from Kapolei Villages), not one two edits away ("Mason City",
+        // "Provincia di Como").
+        let stripped = self.without_full_description(&words);
+        let mut reach = CAP;
+        let Some(forms) = self.near_forms.get(&block) else {
+            return r;
+        };
+        let mut mine = CAP + 1;
+        let mut others: Vec<(usize, usize)> = Vec::new();
+        for f in forms {
+            let own = self.entries[f.entry].code == code;
+            if own && f.key == rewritten {
+                return r;
+            }
+            if own && stripped.contains(&f.key) {
+                reach = 1;
+            }
+            if f.len.abs_diff(len) > CAP || (f.letters ^ letters).count_ones() as usize > 2 * CAP {
+                continue;
+            }
+            let d = edits(&typed, &f.key, CAP);
+            if d == 0 {
+                return r;
+            }
+            if d > CAP {
+                continue;
+            }
+            if own {
+                mine = mine.min(d);
+            } else {
+                others.push((d, f.entry));
+            }
+        }
+        // A form of another era stands for its successors; one that leads
+        // to the matched unit is its own.
+        let mut nearer: Vec<(usize, String)> = Vec::new();
+        for (d, i) in others {
+            let e = &self.entries[i];
+            let lands = if e.current {
+                vec![e.code.clone()]
+            } else {
+                self.follow(i).0
+            };
+            if lands.contains(&code) {
+                mine = mine.min(d);
+            } else {
+                nearer.extend(lands.into_iter().map(|c| (d, c)));
+            }
+        }
+        nearer.retain(|(d, _)| *d < mine && *d <= reach);
+        if nearer.is_empty() {
+            return r;
+        }
+        nearer.sort();
+        let mut seen: BTreeSet<String> = BTreeSet::new();
+        nearer.retain(|(_, c)| seen.insert(c.clone()));
+        let mut candidates = vec![self.candidate_for_code(&code, r.score)];
+        for (_, c) in &nearer {
+            let score = self.by_code.get(c).map_or(0.0, |&i| {
+                strsim::jaro_winkler(&typed, &self.entries[i].bare)
+            });
+            candidates.push(self.candidate_for_code(c, score));
+        }
+        let (d, _) = nearer[0];
+        let note = format!(
+            "read as {} ({code}), but {} ({}) is written {d} edit{} from {name:?}",
+            candidates[0].name,
+            candidates[1].name,
+            candidates[1].code,
+            if d == 1 { "" } else { "s" },
+        );
+        Resolution::review(note, candidates)
+    }
+
+    /// The words of a name without a description written in full at its
+    /// start or end ("Marion city" -> "marion", "County of La Paz" ->
+    /// "lapaz", "Provincia di Roma" -> "roma"), as compact keys; an
+    /// abbreviated or misspelled description ("Cty", "Cuonty") is not
+    /// taken off.
+    fn without_full_description(&self, words: &[Token]) -> Vec<String> {
+        let n = words.len();
+        let mut out = Vec::new();
+        if let Some((ranges, _)) = self.learned_cut(words) {
+            out.push(compact(&words[ranges[0].clone()]));
+        }
+        let full = |k: &str| {
+            self.descriptions.get(k).is_some_and(|c| c == k) || self.learned.contains_key(k)
+        };
+        for k in 1..=3.min(n.saturating_sub(1)) {
+            if full(&compact(&words[n - k..])) {
+                out.push(compact(&words[..n - k]));
+                break;
+            }
+        }
+        for k in 1..=3.min(n.saturating_sub(1)) {
+            if full(&compact(&words[..k])) {
+                let mut j = k;
+                while j < n - 1 && is_connector(&words[j].text) {
+                    j += 1;
+                }
+                out.push(compact(&words[j..]));
+                break;
+            }
+        }
+        out
     }
 
     /// Resolves one name as the name of a single unit.
