@@ -7,24 +7,17 @@
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::Path;
 
+mod common;
+
 use regionkey::core::matcher::{CodeForm, Matcher, Status};
 use regionkey::io::builtin::{us_counties, us_states};
 
-fn rows(file: &str) -> Vec<BTreeMap<String, String>> {
-    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("fixtures/reference")
-        .join(file);
-    let mut r = csv::Reader::from_path(&path).unwrap();
-    let headers: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
-    r.records()
-        .map(|rec| {
-            headers
-                .iter()
-                .cloned()
-                .zip(rec.unwrap().iter().map(String::from))
-                .collect()
-        })
-        .collect()
+fn rows(file: &str) -> Vec<common::Row> {
+    common::read_rows(
+        &Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("fixtures/reference")
+            .join(file),
+    )
 }
 
 /// Rose Island and Swains Island (American Samoa) are in neither atlas
