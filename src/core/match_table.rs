@@ -607,32 +607,70 @@ fn match_rows_with<S: AsRef<str> + Sync>(
         }
     }
 
-    // Each distinct (name, state, year) once, in input order.
+    // Each distinct (name, state, year) once, in order of first use: each
+    // block of rows is indexed on its own (in parallel), then the blocks'
+    // keys are merged in row order, so the order is the same whatever the
+    // thread count.
+    type Pending<'a> = (&'a str, &'a str, Option<u16>, u16, u64);
+    const BLOCK: usize = 1 << 16;
+    let blocks: Vec<std::ops::Range<usize>> = (0..n)
+        .step_by(BLOCK)
+        .map(|start| start..(start + BLOCK).min(n))
+        .collect();
+    let indexed: Vec<Result<(Vec<Pending>, Vec<u32>)>> = blocks
+        .par_iter()
+        .map(|rows| {
+            let mut index: HashMap<(&str, &str, Option<u16>), u32, KeyHashing> =
+                HashMap::with_hasher(KeyHashing);
+            let mut pending: Vec<Pending> = Vec::new();
+            let mut ids: Vec<u32> = Vec::with_capacity(rows.len());
+            for i in rows.clone() {
+                let name = names[i].as_ref();
+                let state = states.map_or("", |s| s[i].as_ref());
+                let year = years.map(|y| y[i]);
+                let vintage = match year {
+                    None => settings.vintage,
+                    Some(y) => vintage_of(y, settings.span).ok_or_else(|| {
+                        Error::Usage(format!(
+                            "row {}: year {y} is before the reference's first vintage ({})",
+                            i + 1,
+                            settings.span.0
+                        ))
+                    })?,
+                };
+                let id = *index.entry((name, state, year)).or_insert_with(|| {
+                    pending.push((name, state, year, vintage, 0));
+                    (pending.len() - 1) as u32
+                });
+                pending[id as usize].4 += 1;
+                ids.push(id);
+            }
+            Ok((pending, ids))
+        })
+        .collect();
     let mut index: HashMap<(&str, &str, Option<u16>), u32, KeyHashing> =
         HashMap::with_hasher(KeyHashing);
-    let mut pending: Vec<(&str, &str, Option<u16>, u16, u64)> = Vec::new();
-    let mut row_key: Vec<u32> = Vec::with_capacity(n);
-    for i in 0..n {
-        let name = names[i].as_ref();
-        let state = states.map_or("", |s| s[i].as_ref());
-        let year = years.map(|y| y[i]);
-        let vintage = match year {
-            None => settings.vintage,
-            Some(y) => vintage_of(y, settings.span).ok_or_else(|| {
-                Error::Usage(format!(
-                    "row {}: year {y} is before the reference's first vintage ({})",
-                    i + 1,
-                    settings.span.0
-                ))
-            })?,
-        };
-        let id = *index.entry((name, state, year)).or_insert_with(|| {
-            pending.push((name, state, year, vintage, 0));
-            (pending.len() - 1) as u32
-        });
-        pending[id as usize].4 += 1;
-        row_key.push(id);
+    let mut pending: Vec<Pending> = Vec::new();
+    let mut block_ids: Vec<(Vec<u32>, Vec<u32>)> = Vec::with_capacity(indexed.len());
+    for block in indexed {
+        let (local, ids) = block?;
+        let global: Vec<u32> = local
+            .into_iter()
+            .map(|(name, state, year, vintage, rows)| {
+                let id = *index.entry((name, state, year)).or_insert_with(|| {
+                    pending.push((name, state, year, vintage, 0));
+                    (pending.len() - 1) as u32
+                });
+                pending[id as usize].4 += rows;
+                id
+            })
+            .collect();
+        block_ids.push((ids, global));
     }
+    let row_key: Vec<u32> = block_ids
+        .par_iter()
+        .flat_map_iter(|(ids, global)| ids.iter().map(|&l| global[l as usize]))
+        .collect();
 
     let vintages: BTreeSet<u16> = pending.iter().map(|p| p.3).collect();
     for v in vintages {
@@ -834,6 +872,46 @@ mod tests {
         assert_eq!(t.rows, 4);
         assert_eq!(t.names, 2);
         assert_eq!(t.open, 1);
+    }
+
+    #[test]
+    fn keys_are_numbered_in_order_of_first_use_across_blocks_of_rows() {
+        // More rows than one indexing block (65,536), with names first used
+        // in the second and third blocks, indexed with 1 and with 3 threads.
+        let n = 150_000;
+        let names: Vec<&str> = (0..n)
+            .map(|i| match i {
+                70_000 => "Baker",
+                140_000.. if i % 2 == 0 => "Autauga",
+                _ if i % 3 == 0 => "Baldwin",
+                _ => "Barbour",
+            })
+            .collect();
+        let states = vec!["AL"; n];
+        let on = |threads: usize| {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| run(&names, Some(&states), None, &Decisions::default()).unwrap())
+        };
+        let (one, three) = (on(1), on(3));
+        assert_eq!(one.row_key, three.row_key);
+        let order: Vec<&str> = one.keys.iter().map(|k| k.name.as_str()).collect();
+        assert_eq!(order, ["Baldwin", "Barbour", "Baker", "Autauga"]);
+        let rows: Vec<u64> = one.keys.iter().map(|k| k.rows).collect();
+        // Baldwin: multiples of 3 outside the Autauga rows, and not 70,000.
+        let autauga = (140_000..n).filter(|i| i % 2 == 0).count() as u64;
+        let baldwin = (0..n)
+            .filter(|&i| i != 70_000 && !(i >= 140_000 && i % 2 == 0) && i % 3 == 0)
+            .count() as u64;
+        assert_eq!(
+            rows,
+            [baldwin, n as u64 - baldwin - 1 - autauga, 1, autauga]
+        );
+        for (i, &k) in one.row_key.iter().enumerate() {
+            assert_eq!(one.keys[k as usize].name, names[i], "row {i}");
+        }
     }
 
     #[test]

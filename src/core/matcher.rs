@@ -224,6 +224,8 @@ struct Entry {
     full_name: String,
     /// Compact key of the name without description.
     bare: String,
+    /// The letters of `bare` (see [`letter_set`]).
+    bare_letters: u64,
     /// Canonical description key ("county", "censusarea"), or empty.
     desc: String,
     parent: Option<String>,
@@ -468,6 +470,8 @@ pub struct Matcher<'r> {
     /// Written forms of every unit (name, full name and aliases, every
     /// era) for the nearer-name check, by parent (`None`: all of them).
     near_forms: HashMap<Option<String>, Vec<NearForm>>,
+    /// Code -> its number in [`NearForm::code`].
+    near_codes: HashMap<String, u32>,
 }
 
 /// One written form of a unit, for [`Matcher::nearer_form`].
@@ -481,6 +485,8 @@ struct NearForm {
     letters: u64,
     /// The entry it names.
     entry: usize,
+    /// Its code's number in `near_codes` (compared instead of the code).
+    code: u32,
 }
 
 /// The set of characters of a key as bits (a-z, 0-9, one bit for any
@@ -621,6 +627,7 @@ impl<'r> Matcher<'r> {
             changes_to: HashMap::new(),
             composites: NamedComposites::default(),
             near_forms: HashMap::new(),
+            near_codes: HashMap::new(),
         };
         for (u, words) in reference.units.iter().zip(unit_words) {
             let desc = key(&u.description);
@@ -630,6 +637,7 @@ impl<'r> Matcher<'r> {
                 name: u.name.clone(),
                 full_name: u.full_name(),
                 bare: whole.clone(),
+                bare_letters: 0,
                 desc: m.descriptions.get(&desc).cloned().unwrap_or(desc),
                 parent: u.parent.clone(),
                 valid: u.valid,
@@ -649,6 +657,7 @@ impl<'r> Matcher<'r> {
                     also.extend(ranges[1..].iter().map(|r| compact(&words[r.clone()])));
                 }
             }
+            entry.bare_letters = letter_set(&entry.bare);
             let i = m.entries.len();
             m.by_bare.entry(entry.bare.clone()).or_default().push(i);
             for k in also {
@@ -703,13 +712,17 @@ impl<'r> Matcher<'r> {
         m.composites = composite::from_aliases(&reference.aliases, |c| {
             m.by_code.get(c).and_then(|&i| m.entries[i].parent.clone())
         });
-        m.near_forms = m.index_near_forms(reference);
+        (m.near_forms, m.near_codes) = m.index_near_forms(reference);
         m
     }
 
     /// The written forms of every unit for [`Matcher::nearer_form`]: the
     /// name, the full name and the aliases of every entry of every era.
-    fn index_near_forms(&self, reference: &Reference) -> HashMap<Option<String>, Vec<NearForm>> {
+    #[allow(clippy::type_complexity)]
+    fn index_near_forms(
+        &self,
+        reference: &Reference,
+    ) -> (HashMap<Option<String>, Vec<NearForm>>, HashMap<String, u32>) {
         let mut forms: Vec<(String, usize)> = Vec::new();
         for (i, e) in self.entries.iter().enumerate() {
             forms.push((key(&e.name), i));
@@ -726,22 +739,26 @@ impl<'r> Matcher<'r> {
         forms.sort_unstable();
         forms.dedup();
         let mut out: HashMap<Option<String>, Vec<NearForm>> = HashMap::new();
+        let mut codes: HashMap<String, u32> = HashMap::new();
         for (k, i) in forms {
             if k.is_empty() {
                 continue;
             }
+            let next = codes.len() as u32;
+            let code = *codes.entry(self.entries[i].code.clone()).or_insert(next);
             let form = NearForm {
                 len: k.chars().count(),
                 letters: letter_set(&k),
                 key: k,
                 entry: i,
+                code,
             };
             if let Some(p) = &self.entries[i].parent {
                 out.entry(Some(p.clone())).or_default().push(form.clone());
             }
             out.entry(None).or_default().push(form);
         }
-        out
+        (out, codes)
     }
 
     /// Registers the written forms of `p` (name, short code,
@@ -987,10 +1004,11 @@ impl<'r> Matcher<'r> {
         let Some(forms) = self.near_forms.get(&block) else {
             return r;
         };
+        let own_code = self.near_codes.get(&code).copied();
         let mut mine = CAP + 1;
         let mut others: Vec<(usize, usize)> = Vec::new();
         for f in forms {
-            let own = self.entries[f.entry].code == code;
+            let own = Some(f.code) == own_code;
             if own && f.key == rewritten {
                 return r;
             }
@@ -2005,14 +2023,15 @@ impl<'r> Matcher<'r> {
     ) -> (Grade, Resolution) {
         // The description separates units of one name ("Baltimor city").
         if let Some(d) = &split.desc {
-            let answered: Vec<String> = scored
+            let entries = &self.entries;
+            let answered: std::collections::HashSet<&str> = scored
                 .iter()
-                .filter(|(i, _)| compatible(d, &self.entries[*i].desc))
-                .map(|(i, _)| self.entries[*i].bare.clone())
+                .filter(|(i, _)| compatible(d, &entries[*i].desc))
+                .map(|(i, _)| entries[*i].bare.as_str())
                 .collect();
             scored.retain(|(i, _)| {
-                let e = &self.entries[*i];
-                compatible(d, &e.desc) || !answered.contains(&e.bare)
+                let e = &entries[*i];
+                compatible(d, &e.desc) || !answered.contains(e.bare.as_str())
             });
         }
         let floors = if never_accept {
@@ -2139,8 +2158,15 @@ impl<'r> Matcher<'r> {
         const CAP: usize = 4;
         let mut best: Option<(usize, usize)> = None;
         let mut second = CAP + 1;
+        let letters = letter_set(query);
         for &(i, _) in scored {
-            let d = edits(query, &self.entries[i].bare, CAP);
+            let e = &self.entries[i];
+            // More than 2 * CAP letters in one name only: over CAP edits.
+            let d = if (letters ^ e.bare_letters).count_ones() as usize > 2 * CAP {
+                CAP + 1
+            } else {
+                edits(query, &e.bare, CAP)
+            };
             match best {
                 Some((b, bi)) if d < b => {
                     if self.entries[bi].code != self.entries[i].code {
