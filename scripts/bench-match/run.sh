@@ -16,23 +16,23 @@
 # Goal (issue 7): 1,000,000 rows at most 1.5 s wall on 2 cores, at most
 # 1 GiB peak, the same bytes with 1 and 2 threads.
 #
-# Measured 2026-12-03 at a load average of 1.5-2.1 (other work on the
-# 2-core machine), best of 3, seconds wall / CPU, peak MB:
+# Measured 2026-12-03 with nothing else running (load average 1.0-1.4),
+# best of 3, against the release binary of 58fcb9d (the matcher before the
+# nearer-name check): PEER=58fcb9d PEER_BIN=<that binary>
 #   rows       binary        threads   wall_s    cpu_s   peak_MB
-#   100000     this                1     0.35     0.33        73
-#   100000     this                2     0.23     0.33        74
-#   100000     peer e22e4da        1     0.25     0.24        67
-#   100000     peer e22e4da        2     0.20     0.25        67
-#   1000000    this                1     2.10     2.06       348
-#   1000000    this                2     1.46     2.01       350
-#   1000000    peer e22e4da        1     1.71     1.68       320
-#   1000000    peer e22e4da        2     1.40     1.63       320
+#   100000     this                1     0.31     0.31        76
+#   100000     this                2     0.22     0.32        77
+#   100000     peer 58fcb9d        1     0.29     0.28        73
+#   100000     peer 58fcb9d        2     0.20     0.28        74
+#   1000000    this                1     1.82     1.77       352
+#   1000000    this                2     1.34     1.88       354
+#   1000000    peer 58fcb9d        1     1.79     1.73       348
+#   1000000    peer 58fcb9d        2     1.29     1.73       350
 # Output and review bytes equal with 1 and 2 threads (both binaries);
 # 5 matched rows differ from the generator's code (generated typos of
-# Cooke County, 48097, that are the real Coke County, TX, 48081). At a
-# load of 3-4 earlier the same day the second thread rarely got a core
-# (1,000,000 rows: 1.82 s wall = 1.82 s CPU with 2 threads, 1.96 s with
-# 1). The wall-clock goal is to be judged from a run on an idle machine.
+# Cooke County, 48097, that are the real Coke County, TX, 48081). An
+# earlier run against e22e4da (before the abbreviation, description and
+# edit-distance rules), at a load of 1.5-2.1: 1.46 s this, 1.40 s peer.
 
 # BIN=path/to/regionkey skips the build of this tree; PEER_BIN=path skips
 # the peer's build. The peer is built in a temporary git worktree into this
