@@ -651,6 +651,11 @@ fn a_reading_gives_way_to_a_unit_written_nearer_to_the_name() {
         let codes: Vec<&str> = r.candidates.iter().map(|c| c.code.as_str()).collect();
         assert!(codes.contains(&near), "{name}: {codes:?}");
         assert!(codes.contains(&read), "{name}: {codes:?}");
+        assert!(
+            r.note.contains(&format!("({near}) is ")),
+            "{name}: {}",
+            r.note
+        );
     }
     // A state set off by a comma is not part of the name as typed: "Ada,
     // ID" is Ada County, although "adaid" is one edit from Adair.

@@ -1063,7 +1063,7 @@ impl<'r> Matcher<'r> {
         }
         let (d, _) = nearer[0];
         let note = format!(
-            "read as {} ({code}), but {} ({}) is written {d} edit{} from {name:?}",
+            "{name:?} reads as {} ({code}), but {} ({}) is {d} edit{} from it as typed",
             candidates[0].name,
             candidates[1].name,
             candidates[1].code,
