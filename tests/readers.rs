@@ -622,6 +622,30 @@ fn a_parquet_file_whose_metadata_claims_an_impossible_size_is_refused() {
         .stderr(predicate::str::contains("panicked").not());
 }
 
+// A damaged Parquet file (fixtures/damaged/README.md) that polars, built
+// without debug assertions (release), decodes into 5 rows with an empty
+// column "from_code": the table reader indexed past the column's end and
+// panicked (exit 101). Every column's length is now checked. In a debug
+// build a debug assertion inside the polars decoder fires first and the
+// panic guard refuses the file; either way it is a located refusal.
+#[test]
+fn a_parquet_file_that_decodes_to_a_short_column_is_refused() {
+    let out = rk()
+        .args(["inspect", "fixtures/damaged/parquet-short-column.parquet"])
+        .env("RUST_BACKTRACE", "0")
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    let said = err.lines().last().unwrap_or_default();
+    assert!(
+        said.starts_with("regionkey: error: fixtures/damaged/parquet-short-column.parquet: ")
+            && (said.contains("column \"from_code\": cannot read as Parquet: the file is damaged (the column has 0 values, the table 5 rows)")
+                || said.contains("the file is damaged (its decoder stopped)")),
+        "{err}"
+    );
+}
+
 // The same file as apply's data table: apply reads Parquet through its own
 // reader (only the columns it needs), checked the same way.
 #[test]

@@ -479,13 +479,22 @@ fn read_parquet(path: &Path, bytes: Vec<u8>) -> Result<Table> {
                 format!("cannot read the column as text: {e}"),
             )
         })?;
-        columns.push(
-            strings
-                .downcast_iter()
-                .flat_map(|array| array.iter())
-                .map(|v| v.unwrap_or("").to_string())
-                .collect(),
-        );
+        let values: Vec<String> = strings
+            .downcast_iter()
+            .flat_map(|array| array.iter())
+            .map(|v| v.unwrap_or("").to_string())
+            .collect();
+        // A damaged file can decode to columns of different lengths.
+        if values.len() != height {
+            return Err(Error::input(
+                Location::file(path).in_column(name),
+                format!(
+                    "cannot read as Parquet: the file is damaged (the column has {} values, the table {height} rows)",
+                    values.len()
+                ),
+            ));
+        }
+        columns.push(values);
     }
     let mut records = Vec::with_capacity(height);
     for row in 0..height {
