@@ -467,11 +467,18 @@ pub struct Matcher<'r> {
     changes_to: HashMap<String, Vec<&'r Change>>,
     /// Named composites: aliases whose code is several codes joined by `+`.
     composites: NamedComposites,
-    /// Written forms of every unit (name, full name and aliases, every
-    /// era) for the nearer-name check, by parent (`None`: all of them).
-    near_forms: HashMap<Option<String>, Vec<NearForm>>,
+    /// Written forms of every unit for the nearer-name check.
+    near: NearForms,
+}
+
+/// Written forms of every unit (name, full name and aliases, every era),
+/// for [`Matcher::nearer_form`].
+#[derive(Debug, Default)]
+struct NearForms {
+    /// By parent (`None`: all of them).
+    by_parent: HashMap<Option<String>, Vec<NearForm>>,
     /// Code -> its number in [`NearForm::code`].
-    near_codes: HashMap<String, u32>,
+    codes: HashMap<String, u32>,
 }
 
 /// One written form of a unit, for [`Matcher::nearer_form`].
@@ -485,14 +492,15 @@ struct NearForm {
     letters: u64,
     /// The entry it names.
     entry: usize,
-    /// Its code's number in `near_codes` (compared instead of the code).
+    /// Its code's number in [`NearForms::codes`] (compared instead of the
+    /// code).
     code: u32,
 }
 
 /// The set of characters of a key as bits (a-z, 0-9, one bit for any
-/// other). An edit adds or removes at most one character of each key's
-/// set, so keys whose sets differ in more than `2 * d` characters are more
-/// than `d` edits apart: a cheap test before counting edits.
+/// other). One edit changes the difference of two keys' sets by at most two
+/// characters, so keys whose sets differ in more than `2 * d` characters
+/// are more than `d` edits apart: a cheap test before counting edits.
 fn letter_set(key: &str) -> u64 {
     key.chars().fold(0, |set, c| {
         let bit = match c {
@@ -626,8 +634,7 @@ impl<'r> Matcher<'r> {
             changes_from: HashMap::new(),
             changes_to: HashMap::new(),
             composites: NamedComposites::default(),
-            near_forms: HashMap::new(),
-            near_codes: HashMap::new(),
+            near: NearForms::default(),
         };
         for (u, words) in reference.units.iter().zip(unit_words) {
             let desc = key(&u.description);
@@ -712,17 +719,13 @@ impl<'r> Matcher<'r> {
         m.composites = composite::from_aliases(&reference.aliases, |c| {
             m.by_code.get(c).and_then(|&i| m.entries[i].parent.clone())
         });
-        (m.near_forms, m.near_codes) = m.index_near_forms(reference);
+        m.near = m.index_near_forms(reference);
         m
     }
 
     /// The written forms of every unit for [`Matcher::nearer_form`]: the
     /// name, the full name and the aliases of every entry of every era.
-    #[allow(clippy::type_complexity)]
-    fn index_near_forms(
-        &self,
-        reference: &Reference,
-    ) -> (HashMap<Option<String>, Vec<NearForm>>, HashMap<String, u32>) {
+    fn index_near_forms(&self, reference: &Reference) -> NearForms {
         let mut forms: Vec<(String, usize)> = Vec::new();
         for (i, e) in self.entries.iter().enumerate() {
             forms.push((key(&e.name), i));
@@ -738,14 +741,16 @@ impl<'r> Matcher<'r> {
         }
         forms.sort_unstable();
         forms.dedup();
-        let mut out: HashMap<Option<String>, Vec<NearForm>> = HashMap::new();
-        let mut codes: HashMap<String, u32> = HashMap::new();
+        let mut near = NearForms::default();
         for (k, i) in forms {
             if k.is_empty() {
                 continue;
             }
-            let next = codes.len() as u32;
-            let code = *codes.entry(self.entries[i].code.clone()).or_insert(next);
+            let next = near.codes.len() as u32;
+            let code = *near
+                .codes
+                .entry(self.entries[i].code.clone())
+                .or_insert(next);
             let form = NearForm {
                 len: k.chars().count(),
                 letters: letter_set(&k),
@@ -754,11 +759,14 @@ impl<'r> Matcher<'r> {
                 code,
             };
             if let Some(p) = &self.entries[i].parent {
-                out.entry(Some(p.clone())).or_default().push(form.clone());
+                near.by_parent
+                    .entry(Some(p.clone()))
+                    .or_default()
+                    .push(form.clone());
             }
-            out.entry(None).or_default().push(form);
+            near.by_parent.entry(None).or_default().push(form);
         }
-        (out, codes)
+        near
     }
 
     /// Registers the written forms of `p` (name, short code,
@@ -1001,10 +1009,10 @@ impl<'r> Matcher<'r> {
         // "Provincia di Como").
         let stripped = self.without_full_description(&words);
         let mut reach = CAP;
-        let Some(forms) = self.near_forms.get(&block) else {
+        let Some(forms) = self.near.by_parent.get(&block) else {
             return r;
         };
-        let own_code = self.near_codes.get(&code).copied();
+        let own_code = self.near.codes.get(&code).copied();
         let mut mine = CAP + 1;
         let mut others: Vec<(usize, usize)> = Vec::new();
         for f in forms {
