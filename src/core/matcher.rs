@@ -966,32 +966,7 @@ impl<'r> Matcher<'r> {
         let Some(code) = r.code.clone() else {
             return r;
         };
-        let mut words = tokens(name);
-        // A state set off by a separator ("Ada, ID", "MN - Cook County") is
-        // not part of the name as typed; it names the block like a state
-        // column.
-        let mut block = state.and_then(|s| self.parent_of(s));
-        let mut written_state = None;
-        for k in (1..=4.min(words.len().saturating_sub(1))).rev() {
-            let n = words.len();
-            if words[n - k].after_separator {
-                if let Some(p) = self.parents.get(&compact(&words[n - k..])) {
-                    written_state = Some(p.clone());
-                    words.truncate(n - k);
-                    break;
-                }
-            }
-            if words[k].after_separator {
-                if let Some(p) = self.parents.get(&compact(&words[..k])) {
-                    written_state = Some(p.clone());
-                    words.drain(..k);
-                    break;
-                }
-            }
-        }
-        if block.is_none() {
-            block = written_state;
-        }
+        let (words, block) = self.as_typed(name, state);
         let typed = compact(&words);
         let len = typed.chars().count();
         if len == 0 || len > 64 {
@@ -1078,6 +1053,33 @@ impl<'r> Matcher<'r> {
             if d == 1 { "" } else { "s" },
         );
         Resolution::review(note, candidates)
+    }
+
+    /// The words of a name as typed, without a state set off by a
+    /// separator ("Ada, ID", "MN - Cook County"), and the parent whose units
+    /// to compare with: the state column's, or else that written state's.
+    fn as_typed(&self, name: &str, state: Option<&str>) -> (Vec<Token>, Option<String>) {
+        let mut words = tokens(name);
+        let mut written = None;
+        for k in (1..=4.min(words.len().saturating_sub(1))).rev() {
+            let n = words.len();
+            if words[n - k].after_separator {
+                if let Some(p) = self.parents.get(&compact(&words[n - k..])) {
+                    written = Some(p.clone());
+                    words.truncate(n - k);
+                    break;
+                }
+            }
+            if words[k].after_separator {
+                if let Some(p) = self.parents.get(&compact(&words[..k])) {
+                    written = Some(p.clone());
+                    words.drain(..k);
+                    break;
+                }
+            }
+        }
+        let block = state.and_then(|s| self.parent_of(s)).or(written);
+        (words, block)
     }
 
     /// The words of a name without a description written in full at its
