@@ -392,11 +392,11 @@ fn sampled_typo_sweep_of_user_lists_accepts_no_wrong_unit() {
 
 /// The whole sweep: every unit of the built-in reference (with its state
 /// and without one) and of the three user lists, every one-edit variant and
-/// 100 seeded two-edit variants per unit. About 17 minutes (33 CPU minutes)
-/// in a release build on two cores.
+/// 100 seeded two-edit variants per unit. About 17-18 minutes (33-35 CPU
+/// minutes) in a release build on two cores.
 ///
-/// Last run (2026-12-03, commit 77e7ae6), variants: accepted right / tied /
-/// deferred / wrong
+/// Last runs (2026-12-03, commits 77e7ae6 and 22697ea, the same figures),
+/// variants: accepted right / tied / deferred / wrong
 /// * built-in counties 2023, one edit: 2,529,322: 1,577,082 / 298 / 951,942 / 0
 /// * built-in counties 2023, two edits: 647,000: 172,721 / 63 / 474,216 / 0
 /// * it-provinces, one edit: 104,506: 59,045 / 0 / 45,461 / 0; two: 9,400: 3,554 / 0 / 5,846 / 0
